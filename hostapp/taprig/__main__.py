@@ -1,0 +1,7 @@
+"""Allow ``python -m taprig``."""
+
+import sys
+
+from taprig.cli import main
+
+sys.exit(main())

@@ -1,0 +1,1 @@
+"""Subcommand modules; each exposes ``register(subparsers)``."""
