@@ -1,0 +1,242 @@
+"""The stream decoder: bytes in, messages and :class:`RawBlock` s out, every loss counted (PROTOCOL.md §5, §6).
+
+A decoder is a plain object fed chunks of bytes as they arrive, split anywhere. It keeps only the bytes after the
+last delimiter between calls; each complete frame goes through the checks of §1 (length, COBS, size, CRC, header
+length), then the sequence accounting, then its type's body decoder. It never raises on bad bytes.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, replace
+
+import numpy as np
+
+from taprig.protocol.framing import CRC_SIZE, FLAG_BOOT, HEADER_SIZE, MAX_ENCODED, FrameError, open_frame
+from taprig.protocol.messages import BODY_DECODERS, Description, MalformedBody, MsgType
+from taprig.protocol.samples import SAMPLES_HEAD, RawBlock, SampleLayout, layout_for_mask
+
+_U32 = 1 << 32
+_HALF = 1 << 31
+_MASK32 = _U32 - 1
+_SAMPLES = int(MsgType.SAMPLES)
+_SAMPLES_DATA = HEADER_SIZE + SAMPLES_HEAD.size
+_NOT_CACHED = object()
+_LAYOUT_CACHE_LIMIT = 256
+
+
+@dataclass
+class Counters:
+    """What a receiver counts (PROTOCOL.md §5); every field starts at 0 and only grows."""
+
+    frames: int = 0
+    bytes: int = 0
+    framing_errors: int = 0
+    crc_errors: int = 0
+    oversize: int = 0
+    unknown_types: int = 0
+    gaps: int = 0
+    frames_lost: int = 0
+    scans_lost: int = 0
+    duplicates: int = 0
+    late: int = 0
+    resets: int = 0
+    undecodable: int = 0
+
+    def as_dict(self) -> dict[str, int]:
+        """Return the counters as a plain dict (field name → count)."""
+        return asdict(self)
+
+
+class StreamDecoder:
+    """Decode a byte stream of frames, in either direction.
+
+    ``feed`` returns, in arrival order, the message dataclasses of :mod:`taprig.protocol.messages` (host → device
+    types included, so a device can decode its commands with it) and :class:`RawBlock` for ``SAMPLES``;
+    consecutive ``SAMPLES`` frames of one channel set within one call come out merged as one block. A frame that
+    repeats the previous ``seq`` is counted as a duplicate and not delivered; a late frame is counted and delivered.
+    ``description`` is the latest ``DESCRIPTION`` seen, or the one given; ``SAMPLES`` need one to be decoded.
+    """
+
+    def __init__(self, description: Description | None = None):
+        self._counters = Counters()
+        self._description = description
+        self._layouts: dict[int, SampleLayout | None] = {}
+        self._carry = b""
+        self._skipping = False
+        self._seq_next: int | None = None
+        self._seq_prev: int | None = None
+        self._scan_next: int | None = None
+        self._time_ref: tuple[int, int] | None = None
+        self._pending: list[tuple] = []
+        self._pending_layout: SampleLayout | None = None
+
+    @property
+    def counters(self) -> Counters:
+        """A snapshot of the counters."""
+        return replace(self._counters)
+
+    @property
+    def description(self) -> Description | None:
+        """The latest ``DESCRIPTION`` received, else the one given to the constructor."""
+        return self._description
+
+    def feed(self, data: bytes) -> list:
+        """Take the next chunk of the stream; return the items completed by it (possibly none)."""
+        if not isinstance(data, bytes):
+            data = bytes(data)
+        counters = self._counters
+        counters.bytes += len(data)
+        if self._carry:
+            data = self._carry + data
+        parts = data.split(b"\x00")
+        tail = parts.pop()
+        if self._skipping:
+            if not parts:
+                return []
+            parts[0] = b""  # the end of an oversize frame, counted when it passed the limit
+            self._skipping = False
+        items: list = []
+        for part in parts:
+            if part:
+                self._frame(part, items)
+        self._flush(items)
+        if len(tail) > MAX_ENCODED:
+            # counted now, skipped up to the next delimiter: the carry never grows past one legal frame
+            counters.oversize += 1
+            self._skipping = True
+            tail = b""
+        self._carry = tail
+        return items
+
+    def _frame(self, encoded: bytes, items: list) -> None:
+        counters = self._counters
+        try:
+            raw, msg_type, flags, seq = open_frame(encoded)
+        except FrameError as exc:
+            setattr(counters, exc.counter, getattr(counters, exc.counter) + 1)
+            return
+        counters.frames += 1
+        if not self._sequence(seq, flags):
+            return
+        if msg_type == _SAMPLES:
+            self._samples(raw, items)
+            return
+        parse = BODY_DECODERS.get(msg_type)
+        if parse is None:
+            counters.unknown_types += 1
+            return
+        try:
+            msg = parse(raw[HEADER_SIZE:-CRC_SIZE])
+        except MalformedBody:
+            counters.framing_errors += 1
+            return
+        if isinstance(msg, Description):
+            self._description = msg
+            self._layouts.clear()
+        self._flush(items)
+        items.append(msg)
+
+    def _sequence(self, seq: int, flags: int) -> bool:
+        """Count gaps, duplicates, late frames and resets; return False for a duplicate (not delivered)."""
+        counters = self._counters
+        if flags & FLAG_BOOT:
+            counters.resets += 1
+            self._scan_next = None
+            self._time_ref = None
+        elif self._seq_next is not None:
+            if seq == self._seq_prev:
+                counters.duplicates += 1
+                return False
+            ahead = (seq - self._seq_next) & _MASK32
+            if ahead > _HALF:
+                counters.late += 1
+                self._seq_prev = seq
+                return True
+            if ahead:
+                counters.gaps += 1
+                counters.frames_lost += ahead
+        self._seq_prev = seq
+        self._seq_next = (seq + 1) & _MASK32
+        return True
+
+    def _samples(self, raw: bytes, items: list) -> None:
+        counters = self._counters
+        if len(raw) < _SAMPLES_DATA + CRC_SIZE:
+            counters.framing_errors += 1
+            return
+        t_us, period_ns, first_scan, n_scans, _, mask = SAMPLES_HEAD.unpack_from(raw, HEADER_SIZE)
+        if mask == 0:
+            counters.framing_errors += 1
+            return
+        if self._description is None:
+            counters.undecodable += 1
+            return
+        layout = self._layouts.get(mask, _NOT_CACHED)
+        if layout is _NOT_CACHED:
+            layout = self._cache_layout(mask)
+        if layout is None:
+            counters.undecodable += 1
+            return
+        if n_scans == 0 or len(raw) != _SAMPLES_DATA + CRC_SIZE + n_scans * layout.scan_bytes:
+            counters.framing_errors += 1
+            return
+        view = layout.frombuffer(raw, _SAMPLES_DATA, n_scans)
+        scan0 = self._scan_start(first_scan, n_scans)
+        t0_ns = self._unwrap_us(t_us) * 1000
+        if layout is not self._pending_layout:
+            self._flush(items)
+            self._pending_layout = layout
+        self._pending.append((view, t0_ns, period_ns, scan0, n_scans))
+
+    def _cache_layout(self, mask: int) -> SampleLayout | None:
+        if len(self._layouts) >= _LAYOUT_CACHE_LIMIT:
+            self._layouts.clear()  # only CRC-valid frames add masks; a bound keeps a chatty bug from hoarding
+        layout = self._layouts[mask] = layout_for_mask(self._description, mask)
+        return layout
+
+    def _scan_start(self, first_scan: int, n_scans: int) -> int:
+        """Return the unwrapped index of a block's first scan; count scans lost before it."""
+        expected = self._scan_next
+        if expected is None or (first_scan == 0 and expected & _MASK32):
+            index = first_scan  # first block seen, or the first block after a START
+        else:
+            ahead = (first_scan - expected) & _MASK32
+            if ahead > _HALF:
+                return expected - (_U32 - ahead)  # a late block: the expectation stays
+            self._counters.scans_lost += ahead
+            index = expected + ahead
+        self._scan_next = index + n_scans
+        return index
+
+    def _unwrap_us(self, t_us: int) -> int:
+        """Unwrap ``t_us`` (§6): a step back of more than 2³¹ µs is a wrap; smaller steps back move no reference."""
+        if self._time_ref is None:
+            self._time_ref = (t_us, t_us)
+            return t_us
+        raw_ref, unwrapped_ref = self._time_ref
+        step = (t_us - raw_ref) & _MASK32
+        if step < _HALF:
+            unwrapped = unwrapped_ref + step
+            self._time_ref = (t_us, unwrapped)
+            return unwrapped
+        return unwrapped_ref - (_U32 - step)
+
+    def _flush(self, items: list) -> None:
+        """Emit the pending ``SAMPLES`` frames as one :class:`RawBlock`."""
+        pending = self._pending
+        if not pending:
+            return
+        layout = self._pending_layout
+        counts = layout.to_counts([p[0] for p in pending])
+        if len(pending) == 1:
+            _, t0_ns, period_ns, scan0, n_scans = pending[0]
+            k = np.arange(n_scans, dtype=np.int64)
+            t_ns, scan_index = t0_ns + k * period_ns, scan0 + k
+        else:
+            heads = np.array([p[1:] for p in pending], dtype=np.int64)
+            sizes = heads[:, 3]
+            k = np.arange(int(sizes.sum()), dtype=np.int64) - np.repeat(np.cumsum(sizes) - sizes, sizes)
+            t_ns = np.repeat(heads[:, 0], sizes) + k * np.repeat(heads[:, 1], sizes)
+            scan_index = np.repeat(heads[:, 2], sizes) + k
+        items.append(RawBlock(counts, layout.channels, t_ns, scan_index))
+        self._pending = []
