@@ -1,0 +1,151 @@
+"""``taprig calibrate RIG``: wind-off zero and span against a liquid manometer, written as a calibration file.
+
+Two ways in:
+
+- ``--from FILE`` (TOML or CSV): the readings and the counts of every step are in the file; nothing is asked.
+- guided (no ``--from``): the terminal walks the operator through the zero, each manometer point and an optional
+  end zero, asking for the readings. The counts of each step come from a counts source; for now that is a file
+  (``--counts FILE``, same formats); the runtime will pass live averaging instead (see
+  :data:`taprig.rig.CountsSource` and :func:`guided`).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import replace
+from datetime import datetime, timezone
+from pathlib import Path
+
+from taprig.cli import UserError
+from taprig.physics.constants import STANDARD_GRAVITY, ZERO_CELSIUS
+from taprig.physics.hydrostatics import normal_gravity
+from taprig.rig import (
+    Calibration,
+    CalibrationInput,
+    CountsSource,
+    Manometer,
+    RigError,
+    calibrate,
+    calibration_to_text,
+    load_rig,
+    manometer_pressure,
+    parse_input_csv,
+    parse_input_toml,
+)
+
+
+def register(sub) -> None:
+    p = sub.add_parser("calibrate", help="wind-off zero and manometer span calibration → calibration file")
+    p.add_argument("rig", metavar="RIG", help="rig file (TOML)")
+    src = p.add_mutually_exclusive_group(required=True)
+    src.add_argument("--from", dest="from_file", metavar="FILE", help="readings and counts of every step (TOML or CSV)")
+    src.add_argument("--counts", metavar="FILE", help="guided mode: counts of each step (TOML or CSV); readings are asked")
+    p.add_argument("-o", "--output", metavar="FILE", help="calibration file to write (.toml or .json; default RIGID.cal.toml)")
+    p.add_argument("--note", default=None, help="operator note stored in the calibration")
+    p.add_argument("--date", default=None, help="calibration date-time, ISO 8601 (default: now, UTC)")
+    p.add_argument("--angle-deg", type=float, default=90.0, help="manometer tube angle above horizontal (CSV input, guided) [deg]")
+    p.add_argument("--liquid-temp-c", type=float, default=20.0, help="water temperature in the manometer [°C]")
+    p.add_argument("--liquid-density", type=float, default=None, help="manometer liquid density if not water [kg/m³]")
+    p.add_argument("--latitude-deg", type=float, default=None, help="local gravity from latitude (default standard gravity)")
+    p.add_argument("--strict", action="store_true", help="exit 1 if any channel is out of tolerance")
+    p.set_defaults(func=run)
+
+
+def manometer_from_args(args) -> Manometer:
+    """The manometer set-up given on the command line (operator units → SI)."""
+    if not 0.0 < args.angle_deg <= 90.0:
+        raise UserError(f"--angle-deg must be in (0, 90], got {args.angle_deg:g}")
+    gravity = STANDARD_GRAVITY if args.latitude_deg is None else float(normal_gravity(math.radians(args.latitude_deg)))
+    return Manometer(angle=math.radians(args.angle_deg), liquid_density=args.liquid_density,
+                     liquid_temperature=ZERO_CELSIUS + args.liquid_temp_c, gravity=gravity)
+
+
+def read_input(path: str, rig, args) -> CalibrationInput:
+    """Parse a calibration input file, by suffix: ``.csv`` or TOML."""
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise UserError(f"cannot read {path}: {exc}") from None
+    if path.lower().endswith(".csv"):
+        return parse_input_csv(text, path, rig, manometer_from_args(args))
+    return parse_input_toml(text, path, rig)
+
+
+def guided(plan: CalibrationInput, counts_source: CountsSource, ask: Callable[[str], str],
+           say: Callable[[str], None]) -> tuple[CalibrationInput, CountsSource]:
+    """Walk the operator through zero → manometer points → end zero; return the plan with the readings typed.
+
+    ``counts_source(label)`` gives the counts of the step just set up (a file now, live averaging later); the
+    returned source maps the steps onto it in the order they were taken.
+    """
+    say(f"Channels on the manifold: {', '.join(plan.channels)}")
+    ask("Wind off, every sensor port open to the room. Press Enter to take the zero. ")
+    taken: dict[str, object] = {"zero": counts_source("zero")}
+    refs, labels = [], []
+    while True:
+        text = ask(f"Point {len(labels) + 1}: set the manometer and type its reading in mm (Enter to finish): ").strip()
+        if not text:
+            break
+        try:
+            reading_m = float(text) * 1e-3
+        except ValueError:
+            say(f"  not a number: {text!r}")
+            continue
+        label = f"point {len(labels) + 1}"
+        refs.append(manometer_pressure(plan.manometer.reading(reading_m)))
+        labels.append(label)
+        taken[label] = counts_source(label)
+        say(f"  {text} mm → {refs[-1]:.3f} Pa")
+    if ask("Take an end zero for the drift check? [y/N] ").strip().lower().startswith("y"):
+        taken["end_zero"] = counts_source("end_zero")
+    return replace(plan, references=tuple(refs), labels=tuple(labels)), taken.get
+
+
+def _report(cal: Calibration, say: Callable[[str], None]) -> None:
+    say(f"{'channel':<14} {'zero [counts]':>14} {'± s.e.':>8} {'gain':>8} {'lin. % FS':>9}  flags")
+    for name, c in cal.channels.items():
+        se = "-" if c.zero_std_error is None else f"{c.zero_std_error:.3g}"
+        lin = "-" if c.linearity_pct_fs is None else f"{c.linearity_pct_fs:.3g}"
+        say(f"{name:<14} {c.zero_counts:>14.2f} {se:>8} {c.gain:>8.5f} {lin:>9}  {'; '.join(c.flags)}")
+
+
+def _date(text: str | None) -> datetime:
+    if text is None:
+        return datetime.now(timezone.utc).replace(microsecond=0)
+    try:
+        return datetime.fromisoformat(text)
+    except ValueError:
+        raise UserError(f"--date: expected an ISO 8601 date-time such as 2024-05-01T10:30, got {text!r}") from None
+
+
+def run(args, ask: Callable[[str], str] = input, say: Callable[[str], None] = print) -> int:
+    try:
+        rig = load_rig(args.rig)
+        plan = read_input(args.from_file or args.counts, rig, args)
+    except RigError as exc:
+        raise UserError(str(exc)) from None
+    if args.note is not None:
+        plan = replace(plan, operator_note=args.note)
+    source: CountsSource = plan.blocks.get
+    if args.counts:
+        by_order = {"zero": plan.blocks.get("zero"), "end_zero": plan.blocks.get("end_zero")}
+        by_order |= {f"point {k + 1}": plan.blocks[label] for k, label in enumerate(plan.labels)}
+        plan, source = guided(plan, by_order.get, ask, say)
+    elif any(r is None for r in plan.references):
+        raise UserError(f"{args.from_file}: every point needs reading_mm (or use --counts for guided mode)")
+    try:
+        cal = calibrate(rig, plan, source, _date(args.date))
+    except ValueError as exc:
+        raise UserError(str(exc)) from None
+    out = Path(args.output or f"{rig.id}.cal.toml")
+    try:
+        out.write_text(calibration_to_text(cal, "json" if out.suffix.lower() == ".json" else "toml"), encoding="utf-8")
+    except OSError as exc:
+        raise UserError(f"cannot write {out}: {exc}") from None
+    _report(cal, say)
+    say(f"wrote {out}")
+    if cal.flagged:
+        say(f"WARNING: {len(cal.flagged)} channel(s) out of tolerance: {', '.join(cal.flagged)}")
+        return 1 if args.strict else 0
+    return 0

@@ -1,0 +1,114 @@
+"""``taprig check RIG...``: validate rig files and print what each rig is and can compute, or every error."""
+
+from __future__ import annotations
+
+import math
+
+from taprig.cli import UserError
+from taprig.rig import Rig, RigError, load_rig
+
+
+def register(sub) -> None:
+    p = sub.add_parser("check", help="validate rig files; print a summary or every error (exit 1 if any is invalid)")
+    p.add_argument("rigs", nargs="+", metavar="RIG", help="rig file(s) (TOML)")
+    p.add_argument("--quiet", "-q", action="store_true", help="print only errors")
+    p.set_defaults(func=run)
+
+
+def _fmt_range(lo: float, hi: float, unit: str) -> str:
+    return f"{lo:g} .. {hi:g} {unit}"
+
+
+def _sensor_lines(rig: Rig) -> list[str]:
+    lines = []
+    for name, s in rig.sensors.items():
+        users = sum(1 for c in rig.channels if c.sensor == name)
+        lines.append(
+            f"  {name:<14} {s.kind:<15} {_fmt_range(*s.range, s.unit):<22} ±{s.accuracy_pct_fs:g} % FS "
+            f"(u = {s.accuracy:.3g} {s.unit}), {users} channel(s)"
+        )
+    return lines
+
+
+def _channel_lines(rig: Rig) -> list[str]:
+    lines = []
+    for c in sorted(rig.channels, key=lambda c: c.index):
+        what = "" if c.measures is None else c.measures.value
+        if c.relative_to:
+            what += f" to {c.relative_to}"
+        quantity = rig.sensors[c.sensor].quantity.value
+        lines.append(f"  {c.index:>3}  {c.name:<14} {c.encoding.name.lower():<4} {c.sensor:<14} {quantity:<9} {what}")
+    return lines
+
+
+def _tap_lines(rig: Rig) -> list[str]:
+    if not rig.taps:
+        return []
+    layout = rig.tap_layout()
+    lines = [f"taps ({len(layout.names)}, in integration order):"]
+    for i, name in enumerate(layout.names):
+        if layout.x_c is not None:
+            where = f"x/c {layout.x_c[i]:.4f}  y/c {layout.y_c[i]:+.4f}  {'upper' if layout.upper[i] else 'lower'}"
+        elif layout.area is not None:
+            where = f"x {layout.x[i] * 1e3:8.2f} mm  area {layout.area[i] * 1e6:9.2f} mm²"
+        elif layout.theta is not None:
+            where = f"θ {math.degrees(layout.theta[i]):7.2f}°"
+        else:
+            where = ""
+        lines.append(f"  {name:<10} ch {layout.channels[i]:>2}  {where}")
+    return lines
+
+
+def _geometry_line(rig: Rig) -> str:
+    g = rig.geometry
+    parts = [f"{label} {getattr(g, key) * 1e3:g} mm" for key, label in
+             (("chord", "chord"), ("span", "span"), ("diameter", "diameter"),
+              ("tunnel_height", "tunnel height"), ("tunnel_width", "tunnel width")) if getattr(g, key) is not None]
+    if g.area_table is not None:
+        parts.append(f"area table of {len(g.area_table.x)} stations")
+    if rig.section is not None:
+        parts.append(f"section {rig.section.shape.name}")
+    return "geometry: " + (", ".join(parts) or "none")
+
+
+def summary(rig: Rig) -> str:
+    """The text ``taprig check`` prints for a valid rig."""
+    ref = rig.reference
+    refs = [f"{k} = {getattr(ref, k)}" for k in ("static", "total", "pitot", "atmosphere", "inlet") if getattr(ref, k)]
+    if ref.pitot:
+        refs.append(f"pitot coefficient {ref.pitot_coefficient:g}")
+    fluid = rig.fluid.medium.value
+    if rig.fluid.temperature is not None:
+        fluid += f" at {rig.fluid.temperature - 273.15:g} °C"
+    lines = [f"rig {rig.id!r}: {rig.name} ({rig.kind.value}, {fluid})"]
+    if rig.description:
+        lines.append(f"  {rig.description}")
+    lines += [f"sensors ({len(rig.sensors)}):"] + _sensor_lines(rig)
+    lines += [f"channels ({len(rig.channels)}):"] + _channel_lines(rig)
+    lines += _tap_lines(rig)
+    lines.append("references: " + (", ".join(refs) or "none"))
+    lines.append(_geometry_line(rig))
+    if rig.balance is not None:
+        lines.append("balance: " + ", ".join(f"{k} = {getattr(rig.balance, k)}" for k in ("lift", "drag") if getattr(rig.balance, k)))
+    for a in rig.actuators:
+        lo, hi, safe = (a.to_device(v) for v in (a.min, a.max, a.safe))
+        unit = "deg" if a.unit == "rad" else a.unit
+        lines.append(f"actuator {a.id} {a.name!r} ({a.kind.name.lower()}): {lo:g} .. {hi:g} {unit}, safe {safe:g}")
+    lines.append("can compute: " + (", ".join(rig.capabilities()) or "raw pressures only"))
+    return "\n".join(lines)
+
+
+def run(args) -> int:
+    failures = []
+    for path in args.rigs:
+        try:
+            rig = load_rig(path)
+        except RigError as exc:
+            failures.append(str(exc))
+            continue
+        if not args.quiet:
+            print(summary(rig))
+            print()
+    if failures:
+        raise UserError("\n".join(failures))
+    return 0

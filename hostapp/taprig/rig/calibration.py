@@ -1,0 +1,175 @@
+"""The calibration value type, its file format (TOML or JSON, versioned), and applying it to counts.
+
+A channel's calibrated value is
+
+    value = gain · slope · (counts − zero_counts)          [Pa or N]
+
+with ``slope`` the sensor's nominal SI value per count (:mod:`taprig.rig.sensors`). So the calibration stores
+
+- ``zero_counts``: the reading, in the channel's native counts, at zero measurand (wind off for a gauge or
+  differential channel; no load for a load cell). Counts, not Pa, so a zero stays right when the gain is later
+  corrected, and a session can be re-reduced with a new span and the same zero.
+- ``gain``: a dimensionless correction of the nominal slope (1 = the datasheet transfer function).
+
+A channel without an entry uses its sensor's nominal transfer function (``zero_counts = −intercept/slope``,
+``gain = 1``). Absolute channels are never wind-off zeroed (their zero is vacuum, not the room).
+"""
+
+from __future__ import annotations
+
+import json
+import tomllib
+from collections.abc import Sequence
+from dataclasses import dataclass
+from datetime import datetime
+from pathlib import Path
+from typing import Literal
+
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field, ValidationError
+
+from taprig.rig.errors import RigError, RigIssue, issues_from_validation
+from taprig.rig.model import Rig
+
+FORMAT_VERSION = 1
+
+
+class ChannelCalibration(BaseModel):
+    """Zero and gain of one channel, with the statistics of the fits that produced them."""
+
+    model_config = ConfigDict(frozen=True, extra="forbid")
+
+    zero_counts: float = Field(description="reading at zero measurand [counts]")
+    gain: float = Field(1.0, gt=0.0, description="correction of the sensor's nominal slope [-]")
+    zero_std_error: float | None = Field(None, ge=0.0, description="standard error of the zero [counts]")
+    residual_rms: float | None = Field(None, ge=0.0, description="rms of the span-fit residuals [Pa or N]")
+    linearity_pct_fs: float | None = Field(None, ge=0.0, description="largest span-fit residual [% FS]")
+    n_points: int = Field(0, ge=0, description="span points behind the gain (0: nominal gain)")
+    flags: tuple[str, ...] = Field((), description="out-of-tolerance findings, for a person")
+
+
+class Calibration(BaseModel):
+    """Per-channel calibration of one rig (channels keyed by channel name)."""
+
+    model_config = ConfigDict(frozen=True, extra="forbid")
+
+    format_version: Literal[1] = FORMAT_VERSION
+    rig_id: str = Field(min_length=1)
+    date: datetime
+    operator_note: str = ""
+    channels: dict[str, ChannelCalibration] = Field(default_factory=dict)
+
+    def problems_with(self, rig: Rig) -> list[str]:
+        """Why this calibration does not fit ``rig`` (another rig id, channels the rig lacks); [] if it fits."""
+        out = []
+        if self.rig_id != rig.id:
+            out.append(f"calibration is for rig {self.rig_id!r}, not {rig.id!r}")
+        names = {c.name for c in rig.channels}
+        out += [f"calibration names channel {n!r}, which rig {rig.id!r} lacks" for n in self.channels if n not in names]
+        return out
+
+    @property
+    def flagged(self) -> dict[str, tuple[str, ...]]:
+        """Channels with out-of-tolerance flags → their flags."""
+        return {n: c.flags for n, c in self.channels.items() if c.flags}
+
+
+@dataclass(frozen=True, eq=False)
+class Conversion:
+    """Per-column counts → SI conversion for one channel set: ``value = (counts − zero) · scale``."""
+
+    channels: tuple[int, ...]
+    scale: np.ndarray  # gain · slope per column [SI per count]
+    zero: np.ndarray  # counts at zero measurand per column
+
+    def apply(self, counts: np.ndarray) -> np.ndarray:
+        """Convert a block (scans × columns) of counts to SI values (vectorised)."""
+        return (np.asarray(counts, dtype=float) - self.zero) * self.scale
+
+
+def conversion_for(rig: Rig, channels: Sequence[int], calibration: Calibration | None = None) -> Conversion:
+    """Build the conversion for the device channel indices ``channels`` (e.g. ``RawBlock.channels``).
+
+    Raises
+    ------
+    ValueError
+        If the calibration belongs to another rig, or a channel index is not in the rig.
+    """
+    if calibration is not None and calibration.rig_id != rig.id:
+        raise ValueError(f"calibration is for rig {calibration.rig_id!r}, not {rig.id!r}")
+    scale = np.empty(len(channels))
+    zero = np.empty(len(channels))
+    for col, index in enumerate(channels):
+        try:
+            channel = rig.channel(int(index))
+        except KeyError as exc:
+            raise ValueError(str(exc.args[0])) from None
+        sensor = rig.sensors[channel.sensor]
+        entry = calibration.channels.get(channel.name) if calibration is not None else None
+        scale[col] = sensor.slope * (entry.gain if entry else 1.0)
+        zero[col] = entry.zero_counts if entry else -sensor.intercept / sensor.slope
+    return Conversion(tuple(int(c) for c in channels), scale, zero)
+
+
+def apply_calibration(
+    counts: np.ndarray, rig: Rig, channels: Sequence[int], calibration: Calibration | None = None
+) -> np.ndarray:
+    """Counts (scans × len(channels)) → calibrated SI values [Pa or N]; pure and vectorised.
+
+    ``value = gain · slope · (counts − zero_counts)`` per column (see the module docstring); without a calibration
+    (or for a channel it does not list) the sensor's nominal transfer function.
+    """
+    return conversion_for(rig, channels, calibration).apply(counts)
+
+
+# -- files ---------------------------------------------------------------------------------------------------------
+def _toml_value(value) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(float(value)) if isinstance(value, float) else str(value)
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
+    return json.dumps(str(value), ensure_ascii=False)  # a JSON string is a valid TOML basic string
+
+
+def calibration_to_text(calibration: Calibration, fmt: Literal["toml", "json"] = "toml") -> str:
+    """Serialise a calibration as TOML (the default) or JSON; :func:`calibration_from_text` reads both."""
+    data = calibration.model_dump(mode="json", exclude_none=True)
+    if fmt == "json":
+        return json.dumps(data, indent=2, ensure_ascii=False) + "\n"
+    lines = ["# taprig calibration: value = gain * slope * (counts - zero_counts); see docs/calibration.md"]
+    lines += [f"{k} = {_toml_value(v)}" for k, v in data.items() if k != "channels"]
+    for name, entry in data["channels"].items():
+        lines += ["", f"[channels.{json.dumps(name)}]"] + [f"{k} = {_toml_value(v)}" for k, v in entry.items()]
+    return "\n".join(lines) + "\n"
+
+
+def calibration_from_text(text: str, source: str = "<string>", fmt: Literal["toml", "json"] | None = None) -> Calibration:
+    """Parse and validate a calibration (TOML, or JSON when ``fmt="json"`` or the text starts with ``{``).
+
+    Raises
+    ------
+    RigError
+        Naming the source and every bad key.
+    """
+    fmt = fmt or ("json" if text.lstrip().startswith("{") else "toml")
+    try:
+        data = json.loads(text) if fmt == "json" else tomllib.loads(text)
+    except (json.JSONDecodeError, tomllib.TOMLDecodeError) as exc:
+        raise RigError(source, [RigIssue("", f"not valid {fmt.upper()}: {exc}")]) from None
+    try:
+        return Calibration.model_validate(data)
+    except ValidationError as exc:
+        raise RigError(source, issues_from_validation(exc)) from None
+
+
+def load_calibration(path: str | Path) -> Calibration:
+    """Read a calibration file (TOML or JSON, by its suffix or first character); RigError on a bad file."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise RigError(str(path), [RigIssue("", f"cannot read the calibration file: {exc}")]) from None
+    return calibration_from_text(text, str(path), "json" if path.suffix.lower() == ".json" else None)
+

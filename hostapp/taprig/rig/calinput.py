@@ -1,0 +1,228 @@
+"""Calibration input: the manometer set-up, the zero block(s) and the span points, from TOML or CSV text.
+
+This is the edge where the operator's units (mm of liquid, degrees, °C, latitude in degrees) become SI. The
+counts come either from the file (``points[k].counts``, CSV rows) or, through :data:`CountsSource`, from live
+averaging in the runtime: :func:`calibrate` takes the source as an argument and is otherwise pure.
+
+TOML layout::
+
+    channels = ["u1", "u2"]          # optional: the channels on the manifold (default: every zeroable pressure channel)
+    operator_note = "..."
+    drift_tolerance_pa = 2.0         # optional
+    [manometer]
+    angle_deg = 90.0                 # 90 = vertical U-tube; e.g. 10 for an inclined gauge
+    liquid = "water"                 # or liquid_density_kg_m3 = 830.0 for another liquid
+    liquid_temperature_c = 20.0
+    latitude_deg = 52.0              # optional; standard gravity 9.80665 m/s² without it
+    well_area_ratio = 0.0
+    [zero]        counts = [[...], ...]         # scans × channels, in the order of `channels`
+    [[points]]    reading_mm = 50.0  counts = [[...], ...]   (or reference_pa = 489.4 for a reference sensor)
+    [end_zero]    counts = [[...], ...]         # optional: drift check
+
+CSV layout: a header ``step,reading_mm,<channel>,<channel>,...``; one row per scan; ``step`` is ``zero``,
+``end_zero`` or a point label (rows with the same label form one block; ``reading_mm`` is read from its first row).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import tomllib
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from datetime import datetime
+
+import numpy as np
+
+from taprig.physics.constants import STANDARD_GRAVITY, ZERO_CELSIUS
+from taprig.physics.hydrostatics import normal_gravity
+from taprig.rig.calibration import Calibration
+from taprig.rig.errors import RigError, RigIssue
+from taprig.rig.fitting import ManometerReading, build_calibration, drift_check, fit_span, manometer_pressure, wind_off_zero, zeroable
+from taprig.rig.model import Rig
+
+#: A source of counts for one calibration step: given the step's label ("zero", "point 1", "end_zero"), return a
+#: block (scans × channels, in the calibration's channel order). The CLI reads the blocks from a file; the
+#: runtime will pass a function that averages live scans.
+CountsSource = Callable[[str], np.ndarray]
+
+MANOMETER_KEYS = {"angle_deg", "liquid", "liquid_density_kg_m3", "liquid_temperature_c", "latitude_deg",
+                  "height_m", "well_area_ratio", "air_density_kg_m3"}
+
+
+@dataclass(frozen=True)
+class Manometer:
+    """The manometer's fixed set-up, SI (readings vary per point)."""
+
+    angle: float = math.pi / 2  # [rad]
+    liquid_density: float | None = None  # [kg/m³], or None for water at liquid_temperature
+    liquid_temperature: float | None = ZERO_CELSIUS + 20.0  # [K]
+    gravity: float = STANDARD_GRAVITY  # [m/s²]
+    air_density: float = 0.0  # [kg/m³]
+    well_area_ratio: float = 0.0
+
+    def reading(self, reading_m: float) -> ManometerReading:
+        """A reading of ``reading_m`` [m] along the tube on this manometer."""
+        return ManometerReading(reading_m, self.angle, self.liquid_density, self.liquid_temperature,
+                                self.gravity, self.air_density, self.well_area_ratio)
+
+
+@dataclass(frozen=True, eq=False)
+class CalibrationInput:
+    """Everything a calibration needs except (optionally) the counts."""
+
+    channels: tuple[str, ...]
+    manometer: Manometer = Manometer()
+    references: tuple[float | None, ...] = ()  # [Pa] per point; None: to be typed in (guided mode)
+    labels: tuple[str, ...] = ()  # per point
+    blocks: dict[str, np.ndarray] = field(default_factory=dict)  # label → scans × channels (file-given counts)
+    operator_note: str = ""
+    drift_tolerance: float | None = None  # [Pa or N]
+
+
+def manometer_from_table(table: dict, source: str) -> Manometer:
+    """Build a :class:`Manometer` from a ``[manometer]`` table in the operator's units (mm, deg, °C)."""
+    unknown = sorted(set(table) - MANOMETER_KEYS)
+    if unknown:
+        raise RigError(source, [RigIssue(f"manometer.{k}", f"unknown key; expected one of {', '.join(sorted(MANOMETER_KEYS))}") for k in unknown])
+    try:
+        liquid = table.get("liquid", "water")
+        density = table.get("liquid_density_kg_m3")
+        if liquid != "water" and density is None:
+            raise ValueError(f"manometer.liquid {liquid!r}: only water has a built-in density; give liquid_density_kg_m3")
+        lat = table.get("latitude_deg")
+        gravity = STANDARD_GRAVITY if lat is None else float(normal_gravity(math.radians(lat), table.get("height_m", 0.0)))
+        return Manometer(
+            angle=math.radians(float(table.get("angle_deg", 90.0))),
+            liquid_density=None if density is None else float(density),
+            liquid_temperature=ZERO_CELSIUS + float(table.get("liquid_temperature_c", 20.0)),
+            gravity=gravity,
+            air_density=float(table.get("air_density_kg_m3", 0.0)),
+            well_area_ratio=float(table.get("well_area_ratio", 0.0)),
+        )
+    except (TypeError, ValueError) as exc:
+        raise RigError(source, [RigIssue("manometer", str(exc))]) from None
+
+
+def _default_channels(rig: Rig) -> tuple[str, ...]:
+    return tuple(c.name for c in rig.channels if rig.is_pressure(c.name) and zeroable(rig, c.name))
+
+
+def _block(value, key: str, n_channels: int, source: str) -> np.ndarray:
+    try:
+        block = np.atleast_2d(np.asarray(value, dtype=float))
+    except (TypeError, ValueError):
+        raise RigError(source, [RigIssue(key, "expected a list of scans, each a list of counts")]) from None
+    if block.ndim != 2 or block.shape[1] != n_channels:
+        raise RigError(source, [RigIssue(key, f"expected scans × {n_channels} channels, got shape {block.shape}")])
+    return block
+
+
+def _reference(point: dict, manometer: Manometer, key: str, source: str) -> float | None:
+    """Reference pressure of a point [Pa]; None when the file leaves it to be typed in (guided mode)."""
+    if "reading_mm" in point and "reference_pa" in point:
+        raise RigError(source, [RigIssue(key, "give one of reading_mm (manometer) or reference_pa (reference sensor), not both")])
+    if "reading_mm" not in point and "reference_pa" not in point:
+        return None
+    try:
+        if "reference_pa" in point:
+            return float(point["reference_pa"])
+        return manometer_pressure(manometer.reading(float(point["reading_mm"]) * 1e-3))
+    except (TypeError, ValueError) as exc:
+        raise RigError(source, [RigIssue(key, str(exc))]) from None
+
+
+def parse_input_toml(text: str, source: str, rig: Rig) -> CalibrationInput:
+    """Parse a TOML calibration input (layout in the module docstring)."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise RigError(source, [RigIssue("", f"not valid TOML: {exc}")]) from None
+    unknown = sorted(set(data) - {"channels", "operator_note", "drift_tolerance_pa", "manometer", "zero", "points", "end_zero", "rig"})
+    if unknown:
+        raise RigError(source, [RigIssue(k, "unknown key") for k in unknown])
+    if "rig" in data and data["rig"] != rig.id:
+        raise RigError(source, [RigIssue("rig", f"input is for another rig than {rig.id!r}", data["rig"])])
+    channels = _check_channels(tuple(data.get("channels", _default_channels(rig))), rig, source)
+    manometer = manometer_from_table(data.get("manometer", {}), source)
+    blocks, refs, labels = {}, [], []
+    for step in ("zero", "end_zero"):
+        if step in data:
+            blocks[step] = _block(data[step].get("counts"), f"{step}.counts", len(channels), source)
+    for k, point in enumerate(data.get("points", [])):
+        label = f"point {k + 1}"
+        refs.append(_reference(point, manometer, f"points[{k}]", source))
+        labels.append(label)
+        if "counts" in point:
+            blocks[label] = _block(point["counts"], f"points[{k}].counts", len(channels), source)
+    return CalibrationInput(channels, manometer, tuple(refs), tuple(labels), blocks,
+                            str(data.get("operator_note", "")), data.get("drift_tolerance_pa"))
+
+
+def _check_channels(channels: tuple[str, ...], rig: Rig, source: str) -> tuple[str, ...]:
+    known = {c.name for c in rig.channels}
+    bad = [RigIssue(f"channels[{i}]", f"not a channel of rig {rig.id!r}", n) for i, n in enumerate(channels) if n not in known]
+    if bad or not channels:
+        raise RigError(source, bad or [RigIssue("channels", "no channels to calibrate")])
+    return channels
+
+
+def parse_input_csv(text: str, source: str, rig: Rig, manometer: Manometer) -> CalibrationInput:
+    """Parse a CSV calibration input (``step,reading_mm,<channels...>``, one row per scan)."""
+    rows = [r for r in csv.reader(io.StringIO(text)) if r and any(c.strip() for c in r)]
+    if not rows or [c.strip() for c in rows[0][:2]] != ["step", "reading_mm"] or len(rows[0]) < 3:
+        raise RigError(source, [RigIssue("line 1", "expected a header 'step,reading_mm,<channel>,...'")])
+    channels = _check_channels(tuple(c.strip() for c in rows[0][2:]), rig, source)
+    grouped: dict[str, list[list[float]]] = {}
+    readings: dict[str, str] = {}
+    for lineno, row in enumerate(rows[1:], start=2):
+        step = row[0].strip()
+        try:
+            grouped.setdefault(step, []).append([float(c) for c in row[2:]])
+        except ValueError:
+            raise RigError(source, [RigIssue(f"line {lineno}", "expected numbers in the channel columns", ",".join(row))]) from None
+        readings.setdefault(step, row[1].strip())
+    blocks = {s: _block(v, f"step {s!r}", len(channels), source) for s, v in grouped.items()}
+    labels = tuple(s for s in grouped if s not in ("zero", "end_zero"))
+    refs = tuple(_reference({"reading_mm": _number(readings[s], s, source)} if readings[s] else {}, manometer,
+                            f"step {s!r}", source) for s in labels)
+    return CalibrationInput(channels, manometer, refs, labels, blocks)
+
+
+def _number(text: str, step: str, source: str) -> float:
+    try:
+        return float(text)
+    except ValueError:
+        raise RigError(source, [RigIssue(f"step {step!r}.reading_mm", "expected a number", text)]) from None
+
+
+def _required(counts_source: CountsSource, label: str) -> np.ndarray:
+    block = counts_source(label)
+    if block is None:
+        raise ValueError(f"no counts for calibration step {label!r}")
+    return np.atleast_2d(np.asarray(block, dtype=float))
+
+
+def calibrate(rig: Rig, plan: CalibrationInput, counts_source: CountsSource, date: datetime) -> Calibration:
+    """Run a calibration: zero (if the source has one), span points, optional end-zero drift check.
+
+    ``counts_source(label)`` gives each step's block of counts (``"zero"``, each of ``plan.labels``,
+    ``"end_zero"``), or None for a step not taken (no zero: the span fit finds the zero itself). Gains are fitted through the wind-off zero when there is one.
+    """
+    if any(r is None for r in plan.references):
+        raise ValueError("every span point needs a reference pressure (a manometer reading or reference_pa)")
+    sensors = [rig.sensor_of(n) for n in plan.channels]
+    zero_block = counts_source("zero")
+    zero = wind_off_zero(zero_block) if zero_block is not None else None
+    span = None
+    if plan.labels:
+        means = np.vstack([_required(counts_source, label).mean(axis=0) for label in plan.labels])
+        span = fit_span(plan.references, means, sensors, None if zero is None else zero.mean)
+    drift = None
+    end_block = counts_source("end_zero")
+    if zero is not None and end_block is not None:
+        tol = plan.drift_tolerance
+        tol_counts = np.array([(s.accuracy if tol is None else tol) / abs(s.slope) for s in sensors])
+        drift = drift_check(zero, wind_off_zero(end_block), tol_counts)
+    return build_calibration(rig, plan.channels, date, zero, span, plan.operator_note, drift, len(plan.labels))

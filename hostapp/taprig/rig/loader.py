@@ -1,0 +1,140 @@
+"""Reading a rig file: TOML text → validated :class:`~taprig.rig.model.Rig`, or a :class:`RigError` listing every problem.
+
+:func:`parse_rig` is pure (the texts of files the rig names come in ``attachments``); :func:`load_rig` is the one
+function in the model layer that reads files.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import tomllib
+from collections.abc import Mapping
+from pathlib import Path
+
+from pydantic import ValidationError
+
+from taprig.rig.errors import CrossCheckFailed, RigError, RigIssue, issues_from_validation
+from taprig.rig.model import Rig
+from taprig.rig.sensors import SENSOR_KINDS
+
+COORDINATES_KEY = "section.coordinates_file"
+
+
+def _clean_loc(loc: tuple) -> tuple:
+    """Drop the union tag pydantic puts after ``sensors.NAME`` (``sensors.tap.ratiometric.b`` → ``sensors.tap.b``)."""
+    if len(loc) > 2 and loc[0] == "sensors" and loc[2] in SENSOR_KINDS:
+        return loc[:2] + loc[3:]
+    return loc
+
+
+def parse_coordinates_csv(text: str, name: str) -> tuple[list[float], list[float]]:
+    """Parse a two-column ``x, y`` coordinate table (an optional header line; ``#`` comments) → (x, y) lists.
+
+    Raises ValueError naming the file and line of the first bad row.
+    """
+    xs: list[float] = []
+    ys: list[float] = []
+    header_seen = False
+    for lineno, row in enumerate(csv.reader(io.StringIO(text)), start=1):
+        cells = [c.strip() for c in row]
+        if not cells or not any(cells) or cells[0].startswith("#"):
+            continue
+        try:
+            if len(cells) != 2:
+                raise ValueError
+            x, y = float(cells[0]), float(cells[1])
+        except ValueError:
+            if not xs and not header_seen:
+                header_seen = True  # one header line ("x,y") is allowed before the numbers
+                continue
+            raise ValueError(f"{name} line {lineno}: expected two numbers 'x, y', got {','.join(row)!r}") from None
+        xs.append(x)
+        ys.append(y)
+    return xs, ys
+
+
+def _attach_coordinates(data: dict, attachments: Mapping[str, str]) -> list[RigIssue]:
+    """Replace ``section.coordinates_file`` by its table (in place), or return the issues found doing so."""
+    section = data.get("section")
+    if not isinstance(section, dict) or "coordinates_file" not in section:
+        return []
+    name = section["coordinates_file"]
+    if "coordinates" in section:
+        return [RigIssue(COORDINATES_KEY, "give coordinates or coordinates_file, not both", name)]
+    if not isinstance(name, str) or name not in attachments:
+        return [RigIssue(COORDINATES_KEY, "coordinate file not found (expected a CSV beside the rig file)", name)]
+    try:
+        x, y = parse_coordinates_csv(attachments[name], name)
+    except ValueError as exc:
+        return [RigIssue(COORDINATES_KEY, str(exc), name)]
+    section["coordinates"] = {"x": x, "y": y}
+    return []
+
+
+def parse_rig(text: str, source: str = "<string>", attachments: Mapping[str, str] | None = None) -> Rig:
+    """Validate a rig file's text into a :class:`Rig`.
+
+    Parameters
+    ----------
+    text : str
+        The TOML text.
+    source : str
+        Name of the file, used in error messages.
+    attachments : mapping, optional
+        Texts of the files the rig names (``section.coordinates_file``), by the name used in the rig.
+
+    Raises
+    ------
+    RigError
+        Listing every problem found, each with its key path, value and what was expected.
+    """
+    attachments = dict(attachments or {})
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise RigError(source, [RigIssue("", f"not valid TOML: {exc}")]) from None
+    issues = _attach_coordinates(data, attachments)
+    if issues:
+        raise RigError(source, issues)
+    try:
+        rig = Rig.model_validate(data)
+    except ValidationError as exc:
+        raise RigError(source, issues_from_validation(exc, _clean_loc)) from None
+    except CrossCheckFailed as exc:
+        raise RigError(source, exc.issues) from None
+    rig._source_text = text
+    rig._attachments = attachments
+    return rig
+
+
+def _named_files(text: str) -> list[str]:
+    """File names a rig text refers to (only the coordinate table so far); [] if the text does not parse."""
+    try:
+        section = tomllib.loads(text).get("section", {})
+    except tomllib.TOMLDecodeError:
+        return []  # parse_rig reports the syntax error
+    name = section.get("coordinates_file") if isinstance(section, dict) else None
+    return [name] if isinstance(name, str) else []
+
+
+def load_rig(path: str | Path) -> Rig:
+    """Read and validate a rig file (and a coordinate CSV it names, looked up beside it).
+
+    Raises
+    ------
+    RigError
+        If the file cannot be read or does not validate; the message names the file.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise RigError(str(path), [RigIssue("", f"cannot read the rig file: {exc}")]) from None
+    attachments = {}
+    for name in _named_files(text):
+        try:
+            attachments[name] = (path.parent / name).read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError):
+            continue  # parse_rig reports the missing attachment with its key
+    return parse_rig(text, str(path), attachments)
