@@ -1,0 +1,261 @@
+"""Block means: mean pressures and Cp with their GUM uncertainty budget, both integrators, wall corrections.
+
+Uncertainty budget (JCGM 100:2008). Per channel the input covariance of the mean pressures is
+
+    U_p = S / n_eff  +  diag(u_B²),     u_B² = u_accuracy² + u_residual² + u_zero² + u_resolution²
+
+with S the sample covariance of the block (so noise that moves every tap together, like a fluctuating fan, stays
+correlated) and n_eff the effective number of independent scans (serial correlation, Bayley & Hammersley). Cp is
+a ratio of linear forms of the channel readings, Cp_i = n_i·p / b·p, so its sensitivities are
+∂Cp_i/∂p = (n_i − Cp_i b)/q (GUM §5.1.3) and U_Cp = J U_p Jᵀ carries the correlation through the shared reference
+channels (GUM §5.2.2). Each integrator is affine in Cp with weights w, so u²(C) = wᵀ U_Cp w, plus (shape-aware
+fit) the integrator's own error estimate in quadrature.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from taprig.physics.integration import ShapeFitIntegrator, SectionWeights, trapezoid_weights
+from taprig.physics.uncertainty import effective_sample_count, propagate_covariance
+from taprig.physics.walls import WallCorrection, correct_2d
+from taprig.protocol import RawBlock
+from taprig.rig import RigKind
+from taprig.reduce.block import frozen_array
+from taprig.reduce.flags import ScanFlag, count_flags, flag_names
+from taprig.reduce.layout import ColumnPlan
+from taprig.reduce.references import ReduceError
+
+
+@dataclass(frozen=True, eq=False)
+class Coefficients:
+    """Section coefficients of one integrator with standard uncertainties [-].
+
+    ``u_*`` combine the measurement (through the integrator's weights) and, for the shape-aware fit, the
+    integrator's own error estimate ``integration_u_*``.
+    """
+
+    method: str
+    cl: float
+    cd_p: float
+    cm_qc: float
+    u_cl: float
+    u_cd_p: float
+    u_cm_qc: float
+    integration_u_cl: float = 0.0
+    integration_u_cd_p: float = 0.0
+    integration_u_cm_qc: float = 0.0
+
+
+@dataclass(frozen=True, eq=False)
+class ReducedMean:
+    """The mean of a short block with uncertainties (see the module docstring for the budget).
+
+    Per channel (block column order): ``p_pa``, ``u_p_pa``. Per tap (integration order): ``cp``, ``u_cp``,
+    ``cov_cp`` (taps × taps), ``cp_ideal`` (venturi). Scalars: ``q_pa``, ``u_q_pa``, ``v_ms``, ``re``, ``mach``,
+    ``alpha_rad``. ``plain`` (trapezoid, always), ``shape`` (shape-aware fit, the default when the rig has a
+    section shape), ``default`` (the one to show), ``corrected`` (the default after 2-D wall corrections, with
+    ``wall``), balance ``lift_n``/``cl_balance``, venturi ``mass_flow_kg_s``. ``flags``: OR of the used scans' and
+    the mean's own :class:`ScanFlag` bits; ``used_scans`` of ``n_scans``; ``excluded_taps`` left out of the
+    integrals.
+    """
+
+    n_scans: int
+    used_scans: int
+    t_ns: tuple[int, int]
+    tap_names: tuple[str, ...]
+    column_names: tuple[str, ...]
+    p_pa: np.ndarray
+    u_p_pa: np.ndarray
+    cp: np.ndarray
+    u_cp: np.ndarray
+    cov_cp: np.ndarray
+    q_pa: float
+    u_q_pa: float
+    v_ms: float
+    re: float
+    mach: float
+    alpha_rad: float
+    plain: Coefficients | None
+    shape: Coefficients | None
+    corrected: Coefficients | None
+    wall: WallCorrection | None
+    flags: int
+    excluded_taps: tuple[str, ...] = ()
+    lift_n: float | None = None
+    cl_balance: float | None = None
+    mass_flow_kg_s: float | None = None
+    cp_ideal: np.ndarray | None = None
+    scan_flag_counts: dict = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        for name in ("p_pa", "u_p_pa", "cp", "u_cp", "cov_cp", "cp_ideal"):
+            object.__setattr__(self, name, frozen_array(getattr(self, name)))
+
+    @property
+    def default(self) -> Coefficients | None:
+        """The coefficients to show: the shape-aware fit where available, else the plain trapezoid."""
+        return self.shape if self.shape is not None else self.plain
+
+    @property
+    def flag_names(self) -> tuple[str, ...]:
+        """Names of the bits in :attr:`flags`."""
+        return flag_names(self.flags, ScanFlag)
+
+
+def _noise_covariance(p: np.ndarray, autocorrelated: bool) -> np.ndarray:
+    """Type-A covariance of the column means, S / n_eff (GUM §4.2.3; n_eff per pair √(n_eff,i n_eff,j))."""
+    n = p.shape[0]
+    if n < 2:
+        return np.zeros((p.shape[1], p.shape[1]))
+    centred = p - p.mean(axis=0)
+    s = centred.T @ centred / (n - 1)
+    n_eff = effective_sample_count(p, axis=0) if autocorrelated else np.full(p.shape[1], float(n))
+    return s / np.sqrt(np.outer(n_eff, n_eff))
+
+
+def cp_jacobian(plan: ColumnPlan, cp: np.ndarray, q: float, dq_dp: np.ndarray) -> np.ndarray:
+    """Sensitivities ∂Cp_i/∂p_j = (n_ij − Cp_i ∂q/∂p_j)/q of tap Cp to the column means (GUM §5.1.3) [1/Pa]."""
+    n = plan.taps.matrix(plan.scale.size)
+    return (n - np.outer(np.nan_to_num(cp), dq_dp)) / q
+
+
+def _combined(weights: np.ndarray, cov: np.ndarray) -> float:
+    """u = √(wᵀ U w) for one affine output [-]."""
+    return float(np.sqrt(max(propagate_covariance(weights[None, :], cov)[0, 0], 0.0)))
+
+
+def coefficients_of(method: str, weights: SectionWeights, cp: np.ndarray, alpha: float, cov: np.ndarray,
+                    own: tuple[float, float, float] = (0.0, 0.0, 0.0)) -> Coefficients:
+    """Apply an affine integrator and carry the Cp covariance through its weights (own error in quadrature)."""
+    res = weights.apply(cp, alpha)
+    u_meas = (_combined(weights.cl(alpha), cov), _combined(weights.cd_p(alpha), cov),
+              _combined(weights.moment, cov))
+    u = [float(np.hypot(m, o)) for m, o in zip(u_meas, own)]
+    return Coefficients(method, float(res.cl), float(res.cd_p), float(res.cm_qc), u[0], u[1], u[2], *own)
+
+
+def wall_corrected(reducer, coeffs: Coefficients, alpha: float) -> tuple[Coefficients | None, WallCorrection | None]:
+    """2-D wall corrections (Barlow, Rae & Pope ch. 9) of a section's coefficients, when the rig allows them.
+
+    Uncertainties scale with the first-order correction factors (the corrections' own uncertainty is not added).
+    """
+    rig, g = reducer.rig, reducer.rig.geometry
+    if not reducer.options.wall_corrections or rig.kind is not RigKind.AIRFOIL or rig.section is None \
+            or None in (g.chord, g.tunnel_height, g.tunnel_width) or not np.isfinite(coeffs.cl):
+        return None, None
+    shape = rig.section.shape
+    # model cross-section: the contour's (shoelace) area at unit chord, scaled by c²
+    area = 0.5 * abs(float(np.dot(shape.x, np.roll(shape.y, -1)) - np.dot(shape.y, np.roll(shape.x, -1)))) * g.chord**2
+    args = (g.chord, g.tunnel_height, g.tunnel_width, area, reducer.options.span_orientation)
+    wc = correct_2d(coeffs.cl, alpha, coeffs.cm_qc, coeffs.cd_p, *args)
+    unit = correct_2d(1.0, alpha, 1.0, coeffs.cd_p, *args)  # the factors multiplying Cl_u and Cm_u
+    cd_factor = float(wc.cd) / coeffs.cd_p if coeffs.cd_p else 1.0
+    corrected = Coefficients(
+        f"{coeffs.method}+walls", float(wc.cl), float(wc.cd), float(wc.cm_quarter_chord),
+        abs(float(unit.cl)) * coeffs.u_cl, abs(cd_factor) * coeffs.u_cd_p,
+        abs(1.0 - 2.0 * float(unit.total_blockage)) * coeffs.u_cm_qc,
+        coeffs.integration_u_cl, coeffs.integration_u_cd_p, coeffs.integration_u_cm_qc,
+    )
+    return corrected, wc
+
+
+def _dq_dp(reducer, plan: ColumnPlan, delta: np.ndarray, q: float) -> np.ndarray:
+    """∂q/∂p per column: the q form's coefficients, or for a venturi q ∝ Δp (inlet − throat) at fixed ε."""
+    if plan.q is not None:
+        return plan.q.matrix(plan.scale.size)[0]
+    ven = reducer.layout.venturi
+    n = plan.taps.matrix(plan.scale.size)
+    differential = -delta[ven.throat]
+    return -n[ven.throat] * (q / differential) if differential > 0 else np.zeros(plan.scale.size)
+
+
+def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> ReducedMean:
+    """Mean of ``block`` with uncertainties, both integrators and wall corrections (see the module docstring).
+
+    Scans whose reference channels are unusable are left out of the mean; a tap with any unusable sample in the
+    remaining scans is left out of the integrals (``excluded_taps``, flag DEGRADED).
+    """
+    plan = reducer.plan(block.channels)
+    counts = np.asarray(block.counts, dtype=float)
+    if counts.ndim != 2 or counts.shape[1] != len(plan.channels) or counts.shape[0] == 0:
+        raise ReduceError(f"block counts have shape {counts.shape}; expected (scans ≥ 1, {len(plan.channels)})")
+    alpha = float(reducer.alpha_array(alpha_rad, 1)[0])
+    p, channel_flags, unusable = reducer.pressures(plan, counts)
+    ref_ok = ~np.any(unusable[:, plan.reference_columns], axis=1) if plan.reference_columns.size else \
+        np.ones(counts.shape[0], dtype=bool)
+    scan_flags = reducer.reduce(block, alpha).scan_flags
+    flags = int(np.bitwise_or.reduce(scan_flags[ref_ok])) if ref_ok.any() else int(ScanFlag.REFERENCE_INVALID)
+    used = p[ref_ok]
+    column_bad = np.any(unusable[ref_ok], axis=0) if used.shape[0] else np.ones(p.shape[1], dtype=bool)
+    clean = np.where(column_bad, 0.0, used)
+    p_mean = np.where(column_bad, np.nan, clean.mean(axis=0)) if used.shape[0] else np.full(p.shape[1], np.nan)
+    cov_p = _noise_covariance(clean, reducer.options.autocorrelated_noise) + np.diag(plan.u_type_b**2)
+    cov_p[column_bad, :] = cov_p[:, column_bad] = 0.0
+    cp, q, tap_ok, mean_flags = reducer.pressure_coefficients(plan, p_mean[None, :], column_bad[None, :])
+    cp, q, tap_ok = cp[0], float(q[0]), tap_ok[0]
+    flags |= int(mean_flags[0])
+    v, re, mach = (float(x[0]) for x in reducer.flow(np.array([q])))
+    usable_q = np.isfinite(cp).any()
+    if usable_q:
+        dq = _dq_dp(reducer, plan, plan.taps.evaluate(p_mean[None, :])[0], q)
+        cov_cp = propagate_covariance(cp_jacobian(plan, cp, q, dq), cov_p)
+        cov_cp[~tap_ok, :] = cov_cp[:, ~tap_ok] = np.nan
+        u_q = float(np.sqrt(propagate_covariance(dq[None, :], cov_p)[0, 0]))
+    else:
+        cov_cp = np.full((cp.size, cp.size), np.nan)
+        u_q = float("nan")
+    plain, shape, excluded, integral_flags = _integrals(reducer, cp, tap_ok, alpha, cov_cp)
+    flags |= integral_flags
+    default = shape if shape is not None else plain
+    corrected, wall = wall_corrected(reducer, default, alpha) if default is not None else (None, None)
+    lift, cl_balance = reducer.balance(plan, p_mean[None, :], np.array([q]))
+    mass = reducer.venturi_flow(cp[None, :], np.array([q]), p_mean[None, :], plan)[0] \
+        if reducer.layout.venturi is not None else None
+    return ReducedMean(
+        n_scans=counts.shape[0], used_scans=int(ref_ok.sum()),
+        t_ns=(int(block.t_ns[0]), int(block.t_ns[-1])), tap_names=reducer.tap_names,
+        column_names=plan.column_names, p_pa=p_mean, u_p_pa=np.sqrt(np.diag(cov_p)), cp=cp,
+        u_cp=np.sqrt(np.diag(cov_cp)), cov_cp=cov_cp, q_pa=q, u_q_pa=u_q, v_ms=v, re=re, mach=mach,
+        alpha_rad=alpha, plain=plain, shape=shape, corrected=corrected, wall=wall, flags=flags,
+        excluded_taps=excluded,
+        lift_n=float(lift[0]) if lift is not None else None,
+        cl_balance=float(cl_balance[0]) if cl_balance is not None else None,
+        mass_flow_kg_s=float(mass) if mass is not None else None,
+        cp_ideal=reducer.layout.venturi.cp_ideal if reducer.layout.venturi is not None else None,
+        scan_flag_counts=count_flags(scan_flags, ScanFlag),
+    )
+
+
+def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp: np.ndarray):
+    """Plain and shape-aware coefficients of the mean Cp over the usable taps."""
+    contour = reducer.layout.contour
+    if contour is None:
+        return None, None, (), 0
+    keep = tap_ok[contour.columns]
+    names = tuple(sorted({reducer.tap_names[c] for c in contour.columns[~keep]}))
+    flags = int(ScanFlag.DEGRADED) if names else 0
+    if np.count_nonzero(keep) < reducer.options.min_taps or not np.all(np.isfinite(cp[contour.columns][keep])):
+        return None, None, names, flags | int(ScanFlag.NO_INTEGRAL)
+    cols = contour.columns[keep]
+    cpk, covk = cp[cols], cov_cp[np.ix_(cols, cols)]
+    plain = coefficients_of("plain", trapezoid_weights(contour.x_c[keep], contour.y_c[keep]), cpk, alpha, covk)
+    fit = reducer.shape_integrator(tuple(np.flatnonzero(keep)))
+    if fit is None:
+        return plain, None, names, flags
+    result = fit.integrate(cpk, alpha)
+    own = (float(result.u_cl), float(result.u_cd_p), float(result.u_cm_qc))
+    return plain, coefficients_of("shape", fit.weights, cpk, alpha, covk, own), names, flags
+
+
+def shape_integrator_for(reducer, keep: tuple[int, ...]) -> ShapeFitIntegrator | None:
+    """A :class:`ShapeFitIntegrator` for the contour points ``keep`` of an airfoil rig (None for other kinds: the
+    fit's inviscid family is that of a section in a free stream, not of a wall bump or a cylinder)."""
+    rig = reducer.rig
+    if rig.kind is not RigKind.AIRFOIL or rig.section is None or len(keep) < 3:
+        return None
+    tap_layout = rig.tap_layout()
+    index = np.asarray(keep, dtype=int)
+    return ShapeFitIntegrator(rig.section.shape, np.asarray(tap_layout.x_c)[index], np.asarray(tap_layout.upper)[index])
