@@ -7,7 +7,7 @@ BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed-stamp
 PYTEST_ARGS ?=
 
-.PHONY: demo test soak bench setup browser clean
+.PHONY: demo test soak bench setup browser micropython clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -21,9 +21,13 @@ setup: $(STAMP)
 demo: $(STAMP)
 	$(BIN)/taprig demo
 
+# One BLAS thread per test worker: two workers on two cores already fill the machine.
+export OPENBLAS_NUM_THREADS ?= 1
+MICROPYTHON_MODULES := $(CURDIR)/.cache/micropython/node_modules
+
 ## Every test (a few minutes on 2 cores). Installs what it needs first.
-test: $(STAMP) browser
-	$(BIN)/python -m pytest -n 2 -m "not soak" $(PYTEST_ARGS)
+test: $(STAMP) browser micropython
+	TAPRIG_MICROPYTHON_NODE_MODULES=$(MICROPYTHON_MODULES) $(BIN)/python -m pytest -n 2 -m "not soak" $(PYTEST_ARGS)
 
 ## Long-running soak tests; TAPRIG_SOAK_SECONDS bounds them (CI runs a short form).
 soak: $(STAMP)
@@ -33,9 +37,13 @@ soak: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/taprig bench
 
+## MicroPython's WebAssembly port (npm), to run the reference firmware under a real MicroPython in the tests.
+micropython:
+	@bash tools/ensure-micropython
+
 ## Debian's Chromium for the dashboard's browser tests.
 browser:
 	@bash tools/ensure-chromium
 
 clean:
-	rm -rf $(VENV) build *.egg-info hostapp/*.egg-info .pytest_cache .hypothesis
+	rm -rf $(VENV) .cache build *.egg-info hostapp/*.egg-info .pytest_cache .hypothesis
