@@ -289,6 +289,10 @@ class SessionReader:
             return self._query("SELECT kind, name, text FROM snapshots ORDER BY id")
         return self._query("SELECT kind, name, text FROM snapshots WHERE kind = ? ORDER BY id", (kind,))
 
+    def timed_snapshots(self, kind: str) -> list[tuple[int, str, str]]:
+        """Return (host_ns, name, text) of the snapshots of one kind, oldest first (replay follows them in time)."""
+        return self._query("SELECT host_ns, name, text FROM snapshots WHERE kind = ? ORDER BY id", (kind,))
+
     def events(self) -> list[Entry]:
         """Return the operator events, oldest first."""
         return [Entry(t, k, json.loads(d)) for t, k, d in self._query("SELECT host_ns, kind, data FROM events ORDER BY id")]

@@ -1,0 +1,187 @@
+"""``taprig replay FILE``: play a recorded session through the decoder and reducer again.
+
+Paced at real time × ``--speed`` (on the recorded host times) or ``--fast`` (as fast as possible); ``--seek S``
+starts S seconds into the session; ``--calibration CAL`` re-reduces the run with another calibration. Prints one
+line per second of session time (means over that second: q, V, Cl or the venturi flow, and the counters) and a
+final summary. The helpers here (one-line errors, the progress bar, the calibration option) serve ``taprig
+export`` and ``taprig info`` too.
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import math
+import sys
+import time
+
+import numpy as np
+
+from taprig.cli import UserError
+
+
+def register(sub) -> None:
+    p = sub.add_parser("replay", help="replay a session file through the decoder and reducer",
+                       description="Replay a recorded session: the stored bytes through a fresh decoder and the "
+                                   "run's reducer, at real time × SPEED or as fast as possible.")
+    p.add_argument("file", metavar="FILE", help="session file (.taprig)")
+    pace = p.add_mutually_exclusive_group()
+    pace.add_argument("--speed", type=_positive, default=1.0, metavar="X",
+                      help="play at X × real time (default 1)")
+    pace.add_argument("--fast", action="store_true", help="play as fast as possible")
+    p.add_argument("--calibration", metavar="CAL", help="re-reduce with this calibration file instead of the session's")
+    p.add_argument("--seek", type=_non_negative, default=0.0, metavar="S",
+                   help="start S seconds after the session start (decoding still starts at the first byte)")
+    p.add_argument("--quiet", action="store_true", help="only the final summary, no line per second")
+    p.set_defaults(func=run)
+
+
+def _positive(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        value = math.nan
+    if not value > 0 or not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"expected a number > 0, got {text!r}")
+    return value
+
+
+def _non_negative(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        value = math.nan
+    if not value >= 0 or not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"expected a number >= 0 [s], got {text!r}")
+    return value
+
+
+# -- helpers shared by replay, export and info -----------------------------------------------------------------
+
+def one_line(message: str) -> str:
+    """A message on one line (a rig or calibration error lists its issues on several)."""
+    return "; ".join(part.strip() for part in str(message).splitlines() if part.strip())
+
+
+def load_calibration_option(path: str | None):
+    """The ``--calibration`` file, or None; a bad or missing file is a one-line UserError."""
+    if path is None:
+        return None
+    from taprig.rig import RigError, load_calibration
+
+    try:
+        return load_calibration(path)
+    except (RigError, ValueError) as exc:
+        raise UserError(one_line(str(exc))) from None
+
+
+@contextlib.contextmanager
+def session_errors():
+    """Turn session, replay and export errors into one-line UserErrors."""
+    from taprig.session.store import SessionError
+
+    try:
+        yield
+    except SessionError as exc:
+        raise UserError(one_line(str(exc))) from None
+
+
+@contextlib.contextmanager
+def progress_bar(description: str, total: int):
+    """A progress bar on stderr (only when stderr is a terminal); yields ``update(done, total)``."""
+    if not sys.stderr.isatty():
+        yield None
+        return
+    from rich.console import Console
+    from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+
+    with Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.percentage:>3.0f}%"),
+                  TimeRemainingColumn(), console=Console(stderr=True), transient=True) as progress:
+        task = progress.add_task(description, total=max(total, 1))
+        yield lambda done, of: progress.update(task, completed=done, total=max(of, 1))
+
+
+# -- the per-second summary ---------------------------------------------------------------------------------------
+
+def _finite_mean(values: np.ndarray | None) -> float:
+    if values is None:
+        return math.nan
+    finite = values[np.isfinite(values)]
+    return float(finite.mean()) if finite.size else math.nan
+
+
+class SecondLines:
+    """Means over each second of session time, printed when the second is complete."""
+
+    QUANTITIES = ("q_pa", "v_ms", "cl", "mass_flow_kg_s")
+
+    def __init__(self, start_ns: int, out):
+        self.start_ns, self.out = start_ns, out
+        self.second: int | None = None
+        self._parts: dict[str, list[np.ndarray]] = {}
+
+    def add(self, step, counters) -> None:
+        """Take a replay step's blocks; print the lines of every second that ends before its last scan."""
+        for block in step.blocks:
+            seconds = (block.host_ns - self.start_ns) // 1_000_000_000
+            for sec in np.unique(seconds):
+                if self.second is not None and sec != self.second:
+                    self.flush(counters)
+                self.second = int(sec)
+                rows = seconds == sec
+                for name in self.QUANTITIES:
+                    value = getattr(block.reduced, name)
+                    if value is not None:
+                        self._parts.setdefault(name, []).append(value[rows])
+
+    def flush(self, counters) -> None:
+        """Print the line of the current second (if it has scans)."""
+        if self.second is None or not self._parts:
+            return
+        means = {name: _finite_mean(np.concatenate(parts)) for name, parts in self._parts.items()}
+        line = [f"t {self.second:5d} s", f"q {means['q_pa']:7.1f} Pa", f"V {means['v_ms']:5.1f} m/s"]
+        if math.isfinite(means["cl"]):
+            line.append(f"Cl {means['cl']:6.3f}")
+        if "mass_flow_kg_s" in means:
+            line.append(f"ṁ {means['mass_flow_kg_s'] * 1000:7.3f} g/s")
+        c = counters.as_dict()
+        line.append(f"frames {c['frames']} crc {c['crc_errors']} gaps {c['gaps']} lost {c['scans_lost']} scans")
+        print("  ".join(line), file=self.out, flush=True)
+        self._parts = {}
+
+
+def _final(replay, scans: int, played_s: float, wall_s: float, calibration: str | None) -> str:
+    c = replay.counters.as_dict()
+    pace = f" ({played_s / wall_s:,.0f}× real time)" if wall_s > 0 and played_s > 0 else ""
+    source = calibration or ("the session's calibration" if replay.reducer.calibration else "nominal sensor transfer")
+    return (f"replayed {played_s:.2f} s of session ({scans} scans, {c['frames']} frames) in {wall_s:.2f} s{pace}; "
+            f"crc errors {c['crc_errors']}, gaps {c['gaps']}, scans lost {c['scans_lost']}, resets {c['resets']}; "
+            f"reduced with {source}")
+
+
+def run(args) -> int:
+    from taprig.session.replay import Replay
+
+    calibration = load_calibration_option(args.calibration)
+    with session_errors():
+        replay = Replay(args.file, calibration=calibration, speed=None if args.fast else args.speed,
+                        seek_s=args.seek)
+    with replay, session_errors(), progress_bar("replaying", replay.total_chunks) as update:
+        lines = None if args.quiet else SecondLines(replay.start_ns or 0, sys.stdout)
+        scans, first, last = 0, None, None
+        t0 = time.monotonic()
+        for step in replay:
+            scans += step.n_scans
+            if step.blocks:
+                first = first if first is not None else int(step.blocks[0].host_ns[0])
+                last = int(step.blocks[-1].host_ns[-1])
+            if lines is not None:
+                lines.add(step, replay.counters)
+            if update is not None:
+                update(step.chunks_done, replay.total_chunks)
+        if lines is not None:
+            lines.flush(replay.counters)
+        wall = time.monotonic() - t0
+    played = 0.0 if first is None else (last - first) / 1e9
+    print(_final(replay, scans, played, wall, args.calibration))
+    return 0

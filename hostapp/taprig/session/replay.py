@@ -1,0 +1,338 @@
+"""Replay a session: its stored chunks through a fresh decoder and the run's reducer, as the live run saw them.
+
+The rig comes from the session's rig snapshot (with any section table stored beside it), the calibration from its
+calibration snapshots (or one given to re-reduce the run with), the ambient conditions from ``meta``. Chunks are
+fed one by one, in recording order, to a fresh :class:`~taprig.protocol.StreamDecoder`, exactly as the link fed
+them live, so the decoded items and the counters are the live ones. Reduction is row by row (every scan's result
+depends on that scan's counts, angle and calibration only), so reducing several chunks' blocks in one call gives
+the same numbers as reducing them one by one; the fast replay does that to save per-call overhead.
+
+What the reducer is given for each chunk, live and in replay alike (see :class:`AngleSchedule`):
+
+- the calibration in force: the first calibration snapshot from the start, each later one from its ``host_ns``;
+- the angle of attack: the safe value of the rig's angle actuator until the first ``setpoint`` event naming it,
+  then the latest such setpoint whose ``host_ns`` is not after the chunk's.
+
+Seek decodes from the first chunk (so the decoder's sequence and scan state and its counters are exact) but
+reduces and paces only from the seek time on; decoding costs a few per cent of a reduction, so this exact method
+is also cheap.
+"""
+
+from __future__ import annotations
+
+import bisect
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Iterator, Protocol
+
+import numpy as np
+
+from taprig.protocol import ActuatorKind, Counters, RawBlock, StreamDecoder
+from taprig.reduce import Ambient, ReducedBlock, ReduceError, Reducer, ambient_for
+from taprig.rig import Calibration, Rig, RigError, calibration_from_text, parse_rig
+from taprig.session.meta import ambient_from_meta
+from taprig.session.store import Entry, SessionError, SessionReader
+
+#: Scans gathered before one reduction call in a fast replay (large enough to amortise the per-call cost, small
+#: enough to stay in cache: 4096 scans × 64 channels of float64 is 2 MB; measured fastest by bench_replay).
+FAST_BATCH_SCANS = 4096
+#: A paced replay waits at most this long [s of wall time] between two chunks: a pause in the recording (a pulled
+#: cable) is played as a short pause, not in full.
+MAX_PACED_WAIT_S = 2.0
+
+
+class ReplayError(SessionError):
+    """A session that cannot be replayed (no rig snapshot, a bad snapshot, a calibration of another rig)."""
+
+
+class Clock(Protocol):
+    """What a paced replay needs of time: a monotonic reading [s] and a way to wait [s]."""
+
+    def monotonic(self) -> float: ...
+
+    def sleep(self, seconds: float) -> None: ...
+
+
+class SystemClock:
+    """The process's monotonic clock."""
+
+    def monotonic(self) -> float:
+        """Seconds of a monotonic clock."""
+        return time.monotonic()
+
+    def sleep(self, seconds: float) -> None:
+        """Wait ``seconds``."""
+        time.sleep(seconds)
+
+
+# -- what a session says about its run --------------------------------------------------------------------------
+
+def rig_from_session(reader: SessionReader) -> Rig:
+    """The rig model of the session's newest rig snapshot (section tables from its ``section`` snapshots)."""
+    snapshots = reader.snapshots("rig")
+    if not snapshots:
+        raise ReplayError(f"{reader.path}: the session holds no rig snapshot, so it cannot be reduced")
+    _, name, text = snapshots[-1]
+    attachments = {n: t for _, n, t in reader.snapshots("section")}
+    try:
+        return parse_rig(text, f"{reader.path} (rig snapshot {name})", attachments)
+    except RigError as exc:
+        raise ReplayError(str(exc)) from None
+
+
+def calibrations_from_session(reader: SessionReader) -> list[tuple[int, Calibration]]:
+    """The session's calibration snapshots as (host_ns, Calibration), oldest first."""
+    out = []
+    for host_ns, name, text in reader.timed_snapshots("calibration"):
+        try:
+            out.append((int(host_ns), calibration_from_text(text, f"{reader.path} (calibration snapshot {name})")))
+        except RigError as exc:
+            raise ReplayError(str(exc)) from None
+    return out
+
+
+def ambient_of_session(reader: SessionReader, rig: Rig) -> Ambient:
+    """The run's ambient conditions from ``meta``, or the rig file's defaults when the session stored none."""
+    try:
+        return ambient_from_meta(reader.meta) or ambient_for(rig)
+    except ValueError as exc:
+        raise ReplayError(f"{reader.path}: the ambient conditions in meta are not usable ({exc})") from None
+
+
+def session_start_ns(reader: SessionReader) -> int | None:
+    """Host time the session started [ns since the epoch]: ``host_started_ns``, else the first chunk's time."""
+    try:
+        return int(reader.meta["host_started_ns"])
+    except (KeyError, ValueError):
+        return reader.chunk_summary()[2]
+
+
+class AngleSchedule:
+    """The commanded angle of attack [rad] in force at each host time (None for a rig without an angle actuator).
+
+    Built from a session's events, or fed live with :meth:`add` in time order. ``at(host_ns)`` is the safe value
+    of the angle actuator until the first setpoint, then the latest setpoint stamped at or before ``host_ns``.
+    """
+
+    def __init__(self, rig: Rig, events: list[Entry] = ()):
+        angle = next((a for a in rig.actuators if a.kind is ActuatorKind.ANGLE), None)
+        self._names = set() if angle is None else {angle.name, angle.id}
+        self._default = None if angle is None else float(angle.safe)
+        self._times: list[int] = []
+        self._values: list[float] = []
+        for event in events:
+            data = event.data if isinstance(event.data, dict) else {}
+            if event.kind == "setpoint" and data.get("actuator") in self._names and "value" in data:
+                self.add(event.host_ns, float(data["value"]))
+
+    def add(self, host_ns: int, value: float) -> None:
+        """A setpoint of the angle actuator [rad] commanded at ``host_ns``."""
+        self._times.append(int(host_ns))
+        self._values.append(float(value))
+
+    def at(self, host_ns: int) -> float | None:
+        """The angle in force at ``host_ns`` [rad], or None when the rig has no angle actuator."""
+        i = bisect.bisect_right(self._times, host_ns) - 1
+        return self._default if i < 0 else self._values[i]
+
+
+# -- replay ------------------------------------------------------------------------------------------------------
+
+@dataclass(frozen=True, eq=False)
+class ReplayBlock:
+    """Raw scans, their reduction, and the host arrival time of each scan's chunk [int64 ns since the epoch]."""
+
+    raw: RawBlock
+    reduced: ReducedBlock
+    host_ns: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
+class ReplayStep:
+    """What one step of a replay produced: one chunk when paced, a batch of chunks when fast.
+
+    ``host_ns`` is the arrival time of the step's last chunk; ``chunks_done`` counts chunks read so far (those
+    skipped by a seek included); ``items`` the decoded items in arrival order (``RawBlock`` s included).
+    """
+
+    host_ns: int
+    chunks_done: int
+    items: tuple
+    blocks: tuple[ReplayBlock, ...]
+
+    @property
+    def n_scans(self) -> int:
+        """Scans reduced in this step."""
+        return sum(b.raw.n_scans for b in self.blocks)
+
+
+class Replay:
+    """Iterate over a session as :class:`ReplayStep` s, paced at ``speed`` × real time or as fast as possible.
+
+    Parameters
+    ----------
+    session : path or SessionReader
+        The session file (opened and closed here) or an open reader (left open).
+    calibration : Calibration, optional
+        Re-reduce the whole run with this calibration instead of the session's own.
+    speed : float, optional
+        Replay at ``speed`` × real time, paced on the recorded host times; None: as fast as possible.
+    seek_s : float
+        Start reducing (and pacing) at this host time after the session start [s].
+    clock : Clock, optional
+        Time source of a paced replay (tests pass a simulated one).
+    batch_scans : int
+        In a fast replay, scans gathered before one reduction call (one step).
+
+    Attributes ``rig``, ``ambient``, ``reducer``, ``meta``, ``start_ns`` (session start, ns since the epoch),
+    ``first_t_ns`` (device time of the first scan, once seen), ``total_chunks`` and ``counters`` (so far).
+    """
+
+    def __init__(self, session: str | Path | SessionReader, calibration: Calibration | None = None,
+                 speed: float | None = None, seek_s: float = 0.0, clock: Clock | None = None,
+                 batch_scans: int = FAST_BATCH_SCANS):
+        if speed is not None and not speed > 0:
+            raise ValueError(f"replay speed must be > 0 (or None for as fast as possible); got {speed}")
+        if not seek_s >= 0:
+            raise ValueError(f"seek must be >= 0 s; got {seek_s}")
+        self._owns = not isinstance(session, SessionReader)
+        self.reader = SessionReader(session) if self._owns else session
+        try:
+            self.rig = rig_from_session(self.reader)
+            self.ambient = ambient_of_session(self.reader, self.rig)
+            self.angles = AngleSchedule(self.rig, self.reader.events())
+            self._calibrations = [(0, calibration)] if calibration is not None else \
+                calibrations_from_session(self.reader)
+            # Each calibration holds from its host time on, the sensors' nominal transfer before the first (a
+            # calibration given at the start is stamped before the first chunk, so it covers the whole run).
+            self._reducers = [self._reducer(None)] + [self._reducer(c) for _, c in self._calibrations]
+            self._switch_ns = [t for t, _ in self._calibrations]
+        except Exception:
+            self.close()
+            raise
+        self.speed, self.seek_s, self.batch_scans = speed, float(seek_s), int(batch_scans)
+        self.clock = clock or SystemClock()
+        self.start_ns = session_start_ns(self.reader)
+        self.total_chunks = self.reader.chunk_summary()[0]
+        self.decoder = StreamDecoder()
+        self.first_t_ns: int | None = None
+        self._origin: tuple[int, float] | None = None
+
+    def _reducer(self, calibration: Calibration | None) -> Reducer:
+        if calibration is not None and calibration.problems_with(self.rig):
+            raise ReplayError(f"{self.reader.path}: " + "; ".join(calibration.problems_with(self.rig)))
+        try:
+            return Reducer(self.rig, calibration, self.ambient)
+        except (ReduceError, ValueError) as exc:
+            raise ReplayError(f"{self.reader.path}: cannot reduce rig {self.rig.id!r}: {exc}") from None
+
+    @property
+    def meta(self) -> dict[str, str]:
+        """The session's metadata."""
+        return self.reader.meta
+
+    @property
+    def reducer(self) -> Reducer:
+        """The reducer in force at the start of the session (the whole run's, unless it was zeroed mid-run)."""
+        return self._reducers[self.reducer_at(self.start_ns or 0)]
+
+    @property
+    def counters(self) -> Counters:
+        """The decoder's counters so far."""
+        return self.decoder.counters
+
+    def close(self) -> None:
+        """Close the session file if this replay opened it."""
+        if self._owns:
+            self.reader.close()
+
+    def __enter__(self) -> Replay:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def reducer_at(self, host_ns: int) -> int:
+        """Index of the reducer in force at ``host_ns``: 0 (nominal) before the first calibration's host time."""
+        return bisect.bisect_right(self._switch_ns, host_ns)
+
+    def __iter__(self) -> Iterator[ReplayStep]:
+        """Replay from the first chunk (each iteration starts afresh, with a new decoder)."""
+        self.decoder, self.first_t_ns, self._origin = StreamDecoder(), None, None
+        seek_ns = (self.start_ns or 0) + round(self.seek_s * 1e9)
+        items: list = []
+        pending: list[tuple[RawBlock, int]] = []
+        scans, current, done = 0, 0, 0
+        for chunk in self.reader.chunks():
+            done += 1
+            decoded = self.decoder.feed(chunk.data)
+            if self.first_t_ns is None:
+                self.first_t_ns = next((int(b.t_ns[0]) for b in decoded if isinstance(b, RawBlock)), None)
+            if chunk.host_ns < seek_ns:
+                continue  # decoded for the decoder's state and counters; not reduced
+            which = self.reducer_at(chunk.host_ns)
+            if which != current and pending:
+                yield self._step(pending[-1][1], done - 1, items, pending, current)
+                items, pending, scans = [], [], 0
+            current = which
+            items += decoded
+            for item in decoded:
+                if isinstance(item, RawBlock):
+                    pending.append((item, chunk.host_ns))
+                    scans += item.n_scans
+            if self.speed is not None:
+                self._wait(chunk.host_ns)
+                yield self._step(chunk.host_ns, done, items, pending, current)
+                items, pending, scans = [], [], 0
+            elif scans >= self.batch_scans:
+                yield self._step(chunk.host_ns, done, items, pending, current)
+                items, pending, scans = [], [], 0
+        if items:
+            yield self._step(pending[-1][1] if pending else seek_ns, done, items, pending, current)
+
+    def _step(self, host_ns: int, done: int, items: list, pending: list, which: int) -> ReplayStep:
+        """Reduce the pending raw blocks (runs of one channel set in one call each) into a step."""
+        reducer = self._reducers[which]
+        blocks = []
+        start = 0
+        while start < len(pending):
+            end = start + 1
+            while end < len(pending) and pending[end][0].channels == pending[start][0].channels:
+                end += 1
+            run = pending[start:end]
+            raw = RawBlock.concat([b for b, _ in run])
+            sizes = [b.n_scans for b, _ in run]
+            arrival = np.repeat(np.array([t for _, t in run], dtype=np.int64), sizes)
+            alpha = self._alpha(reducer, run, sizes)
+            try:
+                reduced = reducer.reduce(raw, alpha_rad=alpha)
+            except (ReduceError, KeyError, IndexError, ValueError) as exc:  # a block the rig does not fit
+                raise ReplayError(f"{self.reader.path}: cannot reduce the scans at host time "
+                                  f"{(run[0][1] - (self.start_ns or 0)) / 1e9:.3f} s: {exc}") from None
+            blocks.append(ReplayBlock(raw, reduced, arrival))
+            start = end
+        return ReplayStep(host_ns, done, tuple(items), tuple(blocks))
+
+    def _alpha(self, reducer: Reducer, run: list, sizes: list[int]):
+        """The angle per scan of a run of blocks: each block's chunk time looked up in the schedule."""
+        values = [self.angles.at(t) for _, t in run]
+        if all(v is None for v in values):
+            return None
+        fixed = reducer.options.alpha_rad
+        return np.repeat(np.array([fixed if v is None else v for v in values], dtype=float), sizes)
+
+    def _wait(self, host_ns: int) -> None:
+        """Pace a replay: wait until ``host_ns`` is due at ``speed`` × real time from the first replayed chunk."""
+        now = self.clock.monotonic()
+        if self._origin is None:
+            self._origin = (host_ns, now)
+            return
+        due = self._origin[1] + (host_ns - self._origin[0]) / 1e9 / self.speed
+        delay = due - now
+        if delay > MAX_PACED_WAIT_S:
+            # a long pause in the recording: move the origin so the rest keeps its pace after a short wait
+            self._origin = (self._origin[0], self._origin[1] - (delay - MAX_PACED_WAIT_S))
+            delay = MAX_PACED_WAIT_S
+        if delay > 0:
+            self.clock.sleep(delay)
