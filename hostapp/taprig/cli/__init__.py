@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import pkgutil
 import sys
 
@@ -58,3 +59,9 @@ def main(argv: list[str] | None = None) -> int:
         return 130
     except BrokenPipeError:
         return 0
+    except Exception as exc:  # a defect: one line for the person, the traceback only on request
+        if os.environ.get("TAPRIG_DEBUG"):
+            raise
+        print(f"taprig {args.command}: internal error: {type(exc).__name__}: {exc} "
+              "(a defect in taprig: please report it; TAPRIG_DEBUG=1 shows the traceback)", file=sys.stderr)
+        return 3

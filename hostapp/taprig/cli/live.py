@@ -1,0 +1,45 @@
+"""One-line live summaries of a run for the terminal (record, demo): user units at this edge."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from taprig.runtime.acquisition import LiveState
+
+
+def _mean(a) -> float:
+    if a is None:
+        return math.nan
+    a = np.asarray(a, dtype=float)
+    finite = a[np.isfinite(a)]
+    return float(finite.mean()) if finite.size else math.nan
+
+
+def live_line(state: LiveState) -> str:
+    """``q 245.1 Pa  V 20.2 m/s  Re 2.0e5  α 4.0°  Cl 0.44  …  frames 1234 crc 0 gaps 0``."""
+    b = state.block
+    parts = []
+    if b is not None:
+        parts.append(f"q {_mean(b.q_pa):7.1f} Pa")
+        parts.append(f"V {_mean(b.v_ms):5.1f} m/s")
+        parts.append(f"Re {_mean(b.re):8.2e}")
+        alpha = _mean(b.alpha_rad)
+        if math.isfinite(alpha):
+            parts.append(f"α {math.degrees(alpha):5.1f}°")
+        cl = _mean(b.cl)
+        if math.isfinite(cl):
+            parts.append(f"Cl {cl:6.3f}  Cd_p {_mean(b.cd_p):6.3f}  Cm¼ {_mean(b.cm_qc):6.3f}")
+        if b.mass_flow_kg_s is not None:
+            parts.append(f"ṁ {_mean(b.mass_flow_kg_s) * 1000:7.3f} g/s")
+        if b.cl_balance is not None:
+            parts.append(f"Cl(balance) {_mean(b.cl_balance):6.3f}")
+    c = state.counters
+    parts.append(f"frames {c.get('frames', 0)} crc {c.get('crc_errors', 0)} gaps {c.get('gaps', 0)} "
+                 f"lost {c.get('scans_lost', 0)} scans")
+    if state.link_state not in ("connected", "restored"):
+        parts.append(f"link {state.link_state}")
+    if state.recording.get("error"):
+        parts.append("NOT RECORDING")
+    return "  ".join(parts)

@@ -1,0 +1,103 @@
+"""Options shared by the commands that run a rig live (``record``, ``demo``): rig, port, calibration, ambient.
+
+User units at this edge only: ambient pressure in hPa, temperature in °C, humidity in %, converted to SI here.
+"""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from typing import TYPE_CHECKING
+
+from taprig.cli import UserError
+
+if TYPE_CHECKING:  # the heavy imports wait until a command runs, so `taprig --help` stays quick
+    from taprig.reduce import Ambient, Reducer
+    from taprig.rig import Calibration, Rig
+
+
+def add_rig_options(p: argparse.ArgumentParser, rig_required: bool = True) -> None:
+    """Add ``--rig``, ``--calibration`` and the ambient options."""
+    p.add_argument("--rig", required=rig_required, metavar="RIG", help="rig file (TOML), see docs/rig-file.md")
+    p.add_argument("--calibration", metavar="CAL", help="calibration file from `taprig calibrate`")
+    p.add_argument("--pressure-hpa", type=float, metavar="HPA", help="room barometric pressure [hPa]")
+    p.add_argument("--temperature-c", type=float, metavar="C",
+                   help="air temperature (the water temperature on a water rig) [°C]")
+    p.add_argument("--humidity-pct", type=float, metavar="PCT", help="relative humidity of the room air [%%]")
+
+
+def load_rig_arg(path: str) -> Rig:
+    """Load the rig file named on the command line, as a one-line error when it is wrong."""
+    from taprig.rig import RigError, load_rig
+
+    try:
+        return load_rig(path)
+    except RigError as exc:
+        raise UserError(str(exc)) from None
+    except OSError as exc:
+        raise UserError(f"{path}: cannot read the rig file ({exc.strerror or exc})") from None
+
+
+def load_calibration_arg(path: str | None, rig: Rig) -> Calibration | None:
+    """Load ``--calibration`` and check it belongs to the rig."""
+    from taprig.rig import RigError, load_calibration
+
+    if path is None:
+        return None
+    try:
+        calibration = load_calibration(path)
+    except (RigError, ValueError) as exc:
+        raise UserError(str(exc)) from None
+    except OSError as exc:
+        raise UserError(f"{path}: cannot read the calibration file ({exc.strerror or exc})") from None
+    problems = calibration.problems_with(rig)
+    if problems:
+        raise UserError(f"{path}: does not fit rig {rig.id!r}: " + "; ".join(problems))
+    return calibration
+
+
+def ambient_arg(args: argparse.Namespace, rig: Rig) -> Ambient:
+    """The ambient conditions from the options, defaulting to the rig file's fluid table."""
+    from taprig.physics.units import Unit, to_si
+    from taprig.reduce import ambient_for
+
+    overrides = {}
+    if args.pressure_hpa is not None:
+        overrides["pressure"] = float(to_si(args.pressure_hpa, Unit.parse("hPa")))
+    if args.temperature_c is not None:
+        overrides["temperature"] = float(to_si(args.temperature_c, Unit.parse("degC")))
+    if args.humidity_pct is not None:
+        overrides["relative_humidity"] = args.humidity_pct / 100.0
+    try:
+        return ambient_for(rig, **overrides)
+    except ValueError as exc:
+        raise UserError(f"ambient conditions: {exc}") from None
+
+
+def build_reducer(rig: Rig, calibration: Calibration | None, ambient: Ambient) -> Reducer:
+    """The run's reducer, as a one-line error when the rig and calibration cannot be reduced together."""
+    from taprig.reduce import ReduceError, Reducer
+
+    try:
+        return Reducer(rig, calibration, ambient)
+    except ReduceError as exc:
+        raise UserError(str(exc)) from None
+
+
+def new_output_path(path: str | None, default_dir: str, stem: str) -> Path:
+    """The session file to write: ``path`` if given (must not exist), else a new name under ``default_dir``."""
+    from datetime import datetime
+
+    if path:
+        out = Path(path)
+        if out.exists():
+            raise UserError(f"{out}: already exists; sessions are never overwritten, choose another name")
+    else:
+        out = Path(default_dir) / f"{stem}-{datetime.now():%Y%m%d-%H%M%S}.taprig"
+    if not out.parent.exists():
+        try:
+            out.parent.mkdir(parents=True)
+        except OSError as exc:
+            raise UserError(f"{out.parent}: cannot create the output folder ({exc.strerror or exc})") from None
+    return out
