@@ -35,7 +35,11 @@ def test_channel_differences_are_named() -> None:
     d = _description()
     fewer = replace(d, channels=d.channels[:8])
     wrong = replace(d, channels=d.channels[:1] + (ChannelInfo("u1", Encoding.I16),) + d.channels[2:])
-    assert RIG.differences(fewer) == ["channel 'lift' (index 8) is not on the device, which has 8 channel(s)"]
+    assert RIG.differences(fewer) == ["the device has 8 channel(s), the rig file describes 9",
+                                      "channel 'lift' (index 8) is not on the device, which has 8 channel(s)"]
+    more = replace(d, channels=d.channels + (ChannelInfo("spare", Encoding.U16),))
+    assert RIG.differences(more) == ["the device has 10 channel(s), the rig file describes 9; "
+                                     "the rig file does not describe device channel(s) [9]"]
     assert RIG.differences(wrong) == ["channel 'u1' (index 1): the rig expects u16, the device sends i16 (device name 'u1')"]
 
 

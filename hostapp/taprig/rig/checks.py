@@ -282,6 +282,12 @@ def _close(a: float, b: float) -> bool:
 def _channel_differences(rig: Rig, description: Description) -> list[str]:
     n = len(description.channels)
     out = []
+    if n != len(rig.channels):
+        # A board streaming channels the rig file does not describe is a wrong rig file (or a wrong board):
+        # every channel must be accounted for, so a mix-up is caught before a run, not in the numbers.
+        unknown = sorted(set(range(n)) - {ch.index for ch in rig.channels})
+        extra = f"; the rig file does not describe device channel(s) {unknown}" if unknown else ""
+        out.append(f"the device has {n} channel(s), the rig file describes {len(rig.channels)}{extra}")
     for ch in rig.channels:
         if ch.index >= n:
             out.append(f"channel {ch.name!r} (index {ch.index}) is not on the device, which has {n} channel(s)")
@@ -317,7 +323,8 @@ def _actuator_differences(act: Actuator, info) -> list[str]:
 def compare_with_description(rig: Rig, description: Description) -> list[str]:
     """Differences between a rig and a device's self-description, one sentence each (empty if they match).
 
-    Checks each rig channel's index exists on the device and has the expected encoding, and each rig actuator's
+    Checks the device has exactly the rig's channels, each rig channel's index exists on the device with the
+    expected encoding, and each rig actuator's
     id exists with the same kind, a compatible unit, limits within the device's and the same safe value
     (compared in the device's unit: degrees for an angle actuator).
     """
