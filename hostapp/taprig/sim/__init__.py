@@ -12,8 +12,6 @@ The pyserial handler (``taprig.link.handlers.protocol_sim``) and ``taprig sim`` 
 device from outside; see ``docs/simulator.md``.
 """
 
-from taprig.sim.device import SimulatedDevice
-from taprig.sim.faults import FaultTally
 from taprig.sim.options import (
     RIG_ENVIRONMENT_VARIABLE,
     OptionError,
@@ -23,6 +21,19 @@ from taprig.sim.options import (
     to_query,
     with_rig,
 )
+
+_HEAVY = {"SimulatedDevice": "taprig.sim.device", "FaultTally": "taprig.sim.faults"}
+
+
+def __getattr__(name: str):
+    # The device pulls in the flow models (scipy, the panel method); commands that only parse a URL or its
+    # options should not pay for that at start-up.
+    if name in _HEAVY:
+        import importlib
+
+        return getattr(importlib.import_module(_HEAVY[name]), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
 
 __all__ = [
     "RIG_ENVIRONMENT_VARIABLE",
