@@ -154,3 +154,14 @@ def test_newer_format_is_refused(tmp_path):
     w.close()
     with pytest.raises(SessionError, match="newer than this taprig reads"):
         SessionReader(path)
+
+
+def test_a_slow_disk_holds_the_producer_back_and_loses_nothing(tmp_path):
+    # Queued-but-uncommitted bytes are bounded: append_chunk waits rather than letting memory grow.
+    w = SessionWriter(tmp_path / "slow.taprig", {}, commit_interval_s=0.05, max_queued_bytes=1000)
+    for i in range(60):
+        w.append_chunk(chunk_payload(i), host_ns=i)
+    w.close()
+    assert w.waits > 0 and w.committed_chunks == 60 and w.error is None
+    with SessionReader(tmp_path / "slow.taprig") as r:
+        assert [c.data for c in r.chunks()] == [chunk_payload(i) for i in range(60)]

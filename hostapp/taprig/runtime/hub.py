@@ -62,7 +62,7 @@ class Hub(Generic[T]):
     ``history`` keeps at most ``history_len`` values (a deque): memory stays flat over a run of hours.
     """
 
-    def __init__(self, history_len: int = 600):
+    def __init__(self, history_len: int = 64):
         self._lock = threading.Lock()
         self._subs: list[Subscription[T]] = []
         self.history: deque[T] = deque(maxlen=history_len)

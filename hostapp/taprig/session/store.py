@@ -94,6 +94,7 @@ class SessionWriter:
         meta: dict[str, str],
         commit_interval_s: float = 0.25,
         max_file_bytes: int | None = None,
+        max_queued_bytes: int = 64 * 2**20,
     ):
         self.path = Path(path)
         if self.path.exists():
@@ -103,6 +104,13 @@ class SessionWriter:
         self.dropped_chunks = 0
         self.committed_chunks = 0
         self._queue: queue.SimpleQueue = queue.SimpleQueue()
+        # Chunks queued but not yet committed are bounded: when the disk falls that far behind, append_chunk
+        # waits (the link's reader then lags, and the board's own buffer or the simulator's clock takes the
+        # strain) instead of memory growing without end. Nothing queued is ever dropped.
+        self.max_queued_bytes = max_queued_bytes
+        self._queued_bytes = 0
+        self._room = threading.Condition()
+        self.waits = 0
         self._closed = threading.Event()
         try:
             self._con = _connect(self.path, readonly=False)
@@ -127,6 +135,12 @@ class SessionWriter:
         if self.error is not None:
             self.dropped_chunks += 1
             return
+        with self._room:
+            if self._queued_bytes > self.max_queued_bytes:
+                self.waits += 1
+                self._room.wait_for(lambda: self._queued_bytes <= self.max_queued_bytes or self.error is not None
+                                    or self._closed.is_set())
+            self._queued_bytes += len(data)
         self._queue.put(("chunks", (host_ns, bytes(data))))
 
     def add_event(self, kind: str, data: dict, host_ns: int | None = None) -> None:
@@ -178,6 +192,8 @@ class SessionWriter:
             self._con.close()
         finally:
             self._closed.set()
+            with self._room:
+                self._room.notify_all()
 
     def _gather(self) -> tuple[list, bool]:
         """Collect work for one commit: block for the first item, then take what arrives within the interval."""
@@ -203,6 +219,14 @@ class SessionWriter:
         by_table: dict[str, list] = {}
         for table, row in batch:
             by_table.setdefault(table, []).append(row)
+        try:
+            self._write(by_table)
+        finally:
+            with self._room:
+                self._queued_bytes -= sum(len(row[-1]) for row in by_table.get("chunks", ()))
+                self._room.notify_all()
+
+    def _write(self, by_table: dict[str, list]) -> None:
         try:
             self._con.execute("BEGIN")
             for table, rows in by_table.items():
