@@ -58,6 +58,8 @@ class _Window:
     blocks: deque = field(default_factory=deque)
 
     def add(self, block: RawBlock) -> None:
+        if self.blocks and block.t_ns[0] < self.blocks[-1].t_ns[-1]:
+            self.blocks.clear()  # device time went back: the board restarted, older scans are another stream
         self.blocks.append(block)
         newest = block.t_ns[-1]
         while self.blocks and newest - self.blocks[0].t_ns[-1] > self.seconds * 1e9:
