@@ -10,7 +10,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from taprig.physics.venturi import ideal_station_cp
-from taprig.rig import Calibration, Rig, RigKind, conversion_for
+from taprig.rig import Calibration, CalibrationLevel, Rig, RigKind, conversion_for
 from taprig.rig.sensors import Quantity
 from taprig.reduce.references import ONE, Form, ReduceError, reference_forms
 
@@ -188,7 +188,9 @@ class ColumnPlan:
     q: Gather | None
     reference_columns: np.ndarray  # columns q and p∞ depend on
     static_absolute: Gather
-    u_type_b: np.ndarray  # per column: sensor accuracy ⊕ calibration ⊕ resolution [SI]
+    u_type_b: np.ndarray  # per column, constant: datasheet rest ⊕ span residual ⊕ zero ⊕ resolution [SI]
+    u_gain: np.ndarray  # per column: the datasheet span part, a relative gain error of the channel's own [-]
+    u_gain_common: np.ndarray  # per column: the span reference's relative error, shared by spanned channels [-]
     q_threshold: float  # no-flow threshold [Pa]
     lift_column: int | None
     force_channels: tuple[int, ...]
@@ -206,23 +208,39 @@ def _check_channels(rig: Rig, channels: tuple[int, ...]) -> None:
         raise ReduceError(f"block lists a channel twice: {channels}")
 
 
-def _type_b(rig: Rig, channels: tuple[int, ...], scale: np.ndarray, calibration: Calibration | None):
-    """Per-column standard uncertainties that averaging does not reduce [SI].
+@dataclass(frozen=True, eq=False)
+class TypeB:
+    """Per-column standard uncertainties that averaging does not reduce (docs/reduction.md, the budget table)."""
 
-    Returns (total, zero): ``total`` = sensor accuracy ⊕ calibration residual ⊕ zero standard error ⊕ resolution;
-    ``zero`` = zero standard error ⊕ resolution, the uncertainty of a reading at no flow after a wind-off zero.
+    constant: np.ndarray  # [SI], independent between channels
+    gain: np.ndarray  # relative [-], independent between channels: multiplies the reading
+    gain_common: np.ndarray  # relative [-], fully correlated between the spanned channels of a calibration
+    zero: np.ndarray  # [SI], the uncertainty of a reading at no flow (zero standard error ⊕ resolution)
+
+
+def type_b(rig: Rig, channels: tuple[int, ...], scale: np.ndarray, calibration: Calibration | None) -> TypeB:
+    """Per-column systematic standard uncertainties after the channels' calibration (JCGM 100:2008 §4.3, §5.2).
+
+    The sensor's datasheet parts the calibration has not replaced (:meth:`SensorBase.datasheet_uncertainty` at
+    the channel's :attr:`ChannelCalibration.level`), and the calibration's own: the zero's standard error, the
+    span fit's rms residual and the reference standard's relative uncertainty; one count's quantisation, LSB/√12
+    (GUM F.2.2.1).
     """
-    total, zero = np.empty(len(channels)), np.empty(len(channels))
+    n = len(channels)
+    out = TypeB(np.empty(n), np.empty(n), np.zeros(n), np.empty(n))
     for col, index in enumerate(channels):
         channel = rig.channel(index)
         entry = calibration.channels.get(channel.name) if calibration is not None else None
+        level = entry.level if entry else CalibrationLevel.NOMINAL
+        datasheet, out.gain[col] = rig.sensors[channel.sensor].datasheet_uncertainty(level)
         residual = (entry.residual_rms or 0.0) if entry else 0.0
         zero_error = (entry.zero_std_error or 0.0) * abs(scale[col]) if entry else 0.0
-        resolution = abs(scale[col]) / math.sqrt(12.0)  # quantisation of one count (GUM F.2.2.1)
-        accuracy = rig.sensors[channel.sensor].accuracy
-        total[col] = math.sqrt(accuracy**2 + residual**2 + zero_error**2 + resolution**2)
-        zero[col] = math.hypot(zero_error, resolution)
-    return total, zero
+        resolution = abs(scale[col]) / math.sqrt(12.0)
+        if level is CalibrationLevel.SPANNED:
+            out.gain_common[col] = entry.reference_u_rel or 0.0
+        out.constant[col] = math.sqrt(datasheet**2 + residual**2 + zero_error**2 + resolution**2)
+        out.zero[col] = math.hypot(zero_error, resolution)
+    return out
 
 
 def _needed(layout: RigLayout, col_of: dict[int, int]) -> set[int]:
@@ -253,7 +271,7 @@ def column_plan(layout: RigLayout, channels: tuple[int, ...], calibration: Calib
     present_forms = [f if not m else {} for f, m in zip(layout.tap_forms, missing)]
     tap_gather = gather_for(present_forms, col_of)
     q_gather = gather_for([layout.q_form], col_of) if layout.q_form is not None else None
-    u_b, u_zero = _type_b(rig, channels, conv.scale, calibration)
+    u_b = type_b(rig, channels, conv.scale, calibration)
     ref_cols = np.array(sorted(col_of[k] for k in _needed(layout, col_of)), dtype=np.intp)
     tap_names = dict(zip((int(c) for c in layout.tap_channels), layout.tap_names))
     return ColumnPlan(
@@ -267,8 +285,8 @@ def column_plan(layout: RigLayout, channels: tuple[int, ...], calibration: Calib
         tap_columns=np.array([col_of.get(int(c), 0) for c in layout.tap_channels], dtype=np.intp),
         missing_taps=missing, q=q_gather, reference_columns=ref_cols,
         static_absolute=gather_for([layout.static_absolute], col_of),
-        u_type_b=u_b,
-        q_threshold=_q_threshold(layout, q_gather, col_of, u_zero, conv.scale, no_flow_factor),
+        u_type_b=u_b.constant, u_gain=u_b.gain, u_gain_common=u_b.gain_common,
+        q_threshold=_q_threshold(layout, q_gather, col_of, u_b.zero, conv.scale, no_flow_factor),
         lift_column=col_of.get(layout.balance_lift) if layout.balance_lift is not None else None,
         force_channels=tuple(i for i, s in zip(channels, sensors) if s.quantity is Quantity.FORCE),
     )

@@ -1,11 +1,15 @@
 """Block means: mean pressures and Cp with their GUM uncertainty budget, both integrators, wall corrections.
 
-Uncertainty budget (JCGM 100:2008). Per channel the input covariance of the mean pressures is
+Uncertainty budget (JCGM 100:2008; the table is in docs/reduction.md). The input covariance of the mean pressures is
 
-    U_p = S / n_eff  +  diag(u_B²),     u_B² = u_accuracy² + u_residual² + u_zero² + u_resolution²
+    U_p = S / n_eff  +  diag(u_B² + (u_gain p̄)²)  +  (u_ref ∘ p̄)(u_ref ∘ p̄)ᵀ
 
 with S the sample covariance of the block (so noise that moves every tap together, like a fluctuating fan, stays
-correlated) and n_eff the effective number of independent scans (serial correlation, Bayley & Hammersley). Cp is
+correlated) and n_eff the effective number of independent scans (serial correlation, Bayley & Hammersley). u_B
+is each channel's constant systematic part (the datasheet band less what its calibration replaced, the span
+fit's residual, the zero's standard error, one count), u_gain the datasheet span part of a channel not spanned
+(a gain error: it scales with the reading), u_ref the span reference's relative uncertainty, one error shared by
+every channel spanned against the same manometer (so it cancels in Cp and stays in q). Cp is
 a ratio of linear forms of the channel readings, Cp_i = n_i·p / b·p, so its sensitivities are
 ∂Cp_i/∂p = (n_i − Cp_i b)/q (GUM §5.1.3) and U_Cp = J U_p Jᵀ carries the correlation through the shared reference
 channels (GUM §5.2.2). Each integrator is affine in Cp with weights w, so u²(C) = wᵀ U_Cp w, plus (shape-aware
@@ -116,6 +120,17 @@ def _noise_covariance(p: np.ndarray, autocorrelated: bool) -> np.ndarray:
     return s / np.sqrt(np.outer(n_eff, n_eff))
 
 
+def _systematic_covariance(plan: ColumnPlan, p_mean: np.ndarray) -> np.ndarray:
+    """Covariance of the systematic errors of the column means [SI²] (GUM §5.2.2; budget in the module docstring).
+
+    Constant and own-gain parts are independent between channels; the span reference's relative error is one
+    error for all spanned channels, a rank-one term.
+    """
+    p = np.nan_to_num(p_mean)
+    shared = plan.u_gain_common * p
+    return np.diag(plan.u_type_b**2 + (plan.u_gain * p) ** 2) + np.outer(shared, shared)
+
+
 def cp_jacobian(plan: ColumnPlan, cp: np.ndarray, q: float, dq_dp: np.ndarray) -> np.ndarray:
     """Sensitivities ∂Cp_i/∂p_j = (n_ij − Cp_i ∂q/∂p_j)/q of tap Cp to the column means (GUM §5.1.3) [1/Pa]."""
     n = plan.taps.matrix(plan.scale.size)
@@ -192,7 +207,7 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
     column_bad = np.any(unusable[ref_ok], axis=0) if used.shape[0] else np.ones(p.shape[1], dtype=bool)
     clean = np.where(column_bad, 0.0, used)
     p_mean = np.where(column_bad, np.nan, clean.mean(axis=0)) if used.shape[0] else np.full(p.shape[1], np.nan)
-    cov_p = _noise_covariance(clean, reducer.options.autocorrelated_noise) + np.diag(plan.u_type_b**2)
+    cov_p = _noise_covariance(clean, reducer.options.autocorrelated_noise) + _systematic_covariance(plan, p_mean)
     cov_p[column_bad, :] = cov_p[:, column_bad] = 0.0
     cp, q, tap_ok, mean_flags = reducer.pressure_coefficients(plan, p_mean[None, :], column_bad[None, :])
     cp, q, tap_ok = cp[0], float(q[0]), tap_ok[0]

@@ -9,6 +9,8 @@ distinct saturation patterns of a block (one, when nothing saturates).
 
 from __future__ import annotations
 
+import copy
+
 import numpy as np
 
 from taprig.physics.flow import (
@@ -81,6 +83,20 @@ class Reducer:
         self._fits: dict[tuple[int, ...], ShapeFitIntegrator | None] = {}
         if self.layout.contour is not None:  # the all-taps fit's design matrices, built now rather than mid-run
             self.shape_integrator(tuple(range(self.layout.contour.columns.size)))
+
+    def with_calibration(self, calibration: Calibration | None) -> Reducer:
+        """This reducer with another calibration (a new zero, a span), same rig, ambient and options.
+
+        The calibration-free parts (the rig layout and the shape-aware fits' design matrices) are shared, so a
+        zero taken mid-run costs no panel-method solve; the per-channel-set arrays are rebuilt on first use.
+        """
+        if calibration is not None and calibration.problems_with(self.rig):
+            raise ReduceError("; ".join(calibration.problems_with(self.rig)))
+        other = copy.copy(self)
+        other.calibration = calibration
+        other._plans = {}
+        other._fits = dict(self._fits)
+        return other
 
     @property
     def tap_names(self) -> tuple[str, ...]:

@@ -27,15 +27,18 @@ Sensors (every one is affine in counts: value = slope · counts + intercept)
     ``RatiometricSensor``, ``DigitalBridgeSensor``, ``LinearSensor``, ``DifferentialSensor``, union ``Sensor``.
     Each has ``counts_to_si(counts)``, ``si_to_counts(value)`` (vectorised), aliases ``counts_to_pa`` /
     ``pa_to_counts`` (pressure sensors), ``quantity``, ``unit``, ``range`` / ``range_pa``, ``full_scale`` /
-    ``full_scale_pa``, ``accuracy`` / ``accuracy_pa`` (standard uncertainty), ``slope``, ``intercept``,
-    ``saturated(counts)`` and ``out_of_range(counts)`` (bool arrays).
+    ``full_scale_pa``, ``accuracy`` / ``accuracy_pa`` (standard uncertainty of the whole band), ``slope``,
+    ``intercept``, ``saturated(counts)`` and ``out_of_range(counts)`` (bool arrays). The band's parts
+    ``offset_pct_fs``, ``span_pct_fs``, ``linearity_pct_fs`` (default 0), ``unattributed_pct_fs`` and
+    ``datasheet_uncertainty(level: CalibrationLevel) -> (u_const [SI], u_gain [-])``; ``CalibrationLevel``
+    (NOMINAL, ZEROED, SPANNED).
 Device check
     ``compare_with_description(rig, description) -> list[str]`` (same as ``rig.differences``); the runtime refuses
     a board with any difference. ``cross_check(rig) -> list[RigIssue]``, ``tap_layout(rig)``, ``capabilities(rig)``.
 Calibration (value = gain · slope · (counts − zero_counts); see docs/calibration.md)
     ``Calibration(format_version, rig_id, date, operator_note, channels: dict[str, ChannelCalibration])`` with
     ``.problems_with(rig) -> list[str]`` and ``.flagged``; ``ChannelCalibration(zero_counts, gain, zero_std_error,
-    residual_rms, linearity_pct_fs, n_points, flags)``; ``load_calibration(path)``,
+    residual_rms, linearity_pct_fs, n_points, reference_u_rel, flags)`` with ``.level -> CalibrationLevel``; ``load_calibration(path)``,
     ``calibration_from_text(text, source, fmt=None)``, ``calibration_to_text(cal, fmt="toml"|"json")``;
     ``conversion_for(rig, channels, calibration=None) -> Conversion`` (per-column ``scale``, ``zero``; ``.apply``);
     ``apply_calibration(counts, rig, channels, calibration=None) -> ndarray`` (pure, vectorised counts → SI);
@@ -44,12 +47,14 @@ Calibration (value = gain · slope · (counts − zero_counts); see docs/calibra
     ``ManometerReading(reading, angle, liquid_density, liquid_temperature, gravity, air_density, well_area_ratio)``
     and ``manometer_pressure(reading) -> float [Pa]``;
     ``fit_span(reference, counts, sensors, zero_counts=None, linearity_tolerance_pct_fs=None, gain_tolerance=0.05)
-    -> SpanFit(gain, zero_counts, residuals, residual_rms, linearity_pct_fs, flags, ok)``;
+    -> SpanFit(gain, zero_counts, residuals, residual_rms, linearity_pct_fs, flags, gain_u_reference,
+    zero_std_error, ok)`` (also ``reference_u=`` [Pa] per point and ``reference_u_rel=`` [-] common);
     ``build_calibration(rig, channels, date, zero=None, span=None, operator_note="", drift=None, n_points=0)``;
     the procedure ``calibrate(rig, plan: CalibrationInput, counts_source: CountsSource, date) -> Calibration``
     where ``CountsSource = Callable[[str], ndarray | None]`` maps a step label ("zero", "point 1", …,
     "end_zero") to a block of scans (the runtime plugs live averaging in here); ``parse_input_toml`` /
-    ``parse_input_csv`` read an input file's text; ``Manometer`` is the fixed manometer set-up.
+    ``parse_input_csv`` read an input file's text; ``Manometer`` is the fixed manometer set-up with its
+    input uncertainties, ``Manometer.reference_uncertainty() -> (u_point [Pa], u_rel [-])``.
 """
 
 from taprig.rig.calibration import (
@@ -98,6 +103,7 @@ from taprig.rig.model import (
     Tap,
 )
 from taprig.rig.sensors import (
+    CalibrationLevel,
     DifferentialSensor,
     DigitalBridgeSensor,
     LinearSensor,
@@ -108,7 +114,7 @@ from taprig.rig.sensors import (
 )
 
 __all__ = [
-    "FORMAT_VERSION", "Actuator", "AreaTable", "Balance", "Calibration", "CalibrationInput", "Channel",
+    "FORMAT_VERSION", "Actuator", "AreaTable", "Balance", "Calibration", "CalibrationInput", "CalibrationLevel", "Channel",
     "ChannelCalibration", "Conversion", "Coordinates", "CountsSource", "DifferentialSensor", "DigitalBridgeSensor",
     "DriftResult", "Fluid", "Geometry", "LinearSensor", "Link", "Manometer", "ManometerReading", "Measures", "Medium",
     "Quantity", "RatiometricSensor", "Reference", "Rig", "RigError", "RigIssue", "RigKind", "Section", "Sensor",

@@ -15,6 +15,9 @@ TOML layout::
     liquid_temperature_c = 20.0
     latitude_deg = 52.0              # optional; standard gravity 9.80665 m/s² without it
     well_area_ratio = 0.0
+    reading_resolution_mm = 1.0      # uncertainty inputs, each optional (defaults: Manometer's docstring)
+    liquid_temperature_u_c = 1.0
+    angle_u_deg = 0.1
     [zero]        counts = [[...], ...]         # scans × channels, in the order of `channels`
     [[points]]    reading_mm = 50.0  counts = [[...], ...]   (or reference_pa = 489.4 for a reference sensor)
     [end_zero]    counts = [[...], ...]         # optional: drift check
@@ -37,6 +40,7 @@ import numpy as np
 
 from taprig.physics.constants import STANDARD_GRAVITY, ZERO_CELSIUS
 from taprig.physics.hydrostatics import normal_gravity
+from taprig.physics.water import water_density
 from taprig.rig.calibration import Calibration
 from taprig.rig.errors import RigError, RigIssue
 from taprig.rig.fitting import ManometerReading, build_calibration, drift_check, fit_span, manometer_pressure, wind_off_zero, zeroable
@@ -48,12 +52,32 @@ from taprig.rig.model import Rig
 CountsSource = Callable[[str], np.ndarray]
 
 MANOMETER_KEYS = {"angle_deg", "liquid", "liquid_density_kg_m3", "liquid_temperature_c", "latitude_deg",
-                  "height_m", "well_area_ratio", "air_density_kg_m3"}
+                  "height_m", "well_area_ratio", "air_density_kg_m3", "reading_resolution_mm",
+                  "liquid_temperature_u_c", "liquid_density_u_kg_m3", "gravity_u_m_s2", "angle_u_deg"}
+
+#: A given liquid density read as ±0.5 kg/m³ (a specific gravity quoted to three decimals), rectangular.
+DEFAULT_DENSITY_BOUND = 0.5
+#: Local gravity's departure from normal gravity (anomalies), a ±5e-4 m/s² bound (physics.hydrostatics notes).
+GRAVITY_ANOMALY_BOUND = 5e-4
+
+
+def _standard_gravity_bound() -> float:
+    """Largest gap between standard gravity and sea-level normal gravity anywhere (equator or pole) [m/s²]."""
+    extremes = normal_gravity(np.array([0.0, math.pi / 2]))
+    return float(np.max(np.abs(extremes - STANDARD_GRAVITY)))
 
 
 @dataclass(frozen=True)
 class Manometer:
-    """The manometer's fixed set-up, SI (readings vary per point)."""
+    """The manometer's fixed set-up, SI (readings vary per point), and the uncertainties of its inputs.
+
+    Uncertainty inputs (standard uncertainties unless said; defaults are stated choices, not sourced values):
+    ``reading_resolution`` [m] the scale division (default 1 mm); ``temperature_u`` [K] of the water temperature
+    (default 1 K); ``density_u`` [kg/m³] of a given liquid density (default ±0.5 kg/m³ rectangular, 0.29);
+    ``gravity_u`` [m/s²] (default: with standard gravity, its largest gap to sea-level normal gravity, 0.026,
+    as a rectangular bound; with gravity from the latitude, ±5e-4 for local anomalies); ``angle_u`` [rad] of the
+    tube's inclination (default 0.1°, a tube set with a spirit level; no effect on a vertical tube).
+    """
 
     angle: float = math.pi / 2  # [rad]
     liquid_density: float | None = None  # [kg/m³], or None for water at liquid_temperature
@@ -61,11 +85,52 @@ class Manometer:
     gravity: float = STANDARD_GRAVITY  # [m/s²]
     air_density: float = 0.0  # [kg/m³]
     well_area_ratio: float = 0.0
+    reading_resolution: float = 1e-3  # [m]
+    temperature_u: float = 1.0  # [K]
+    density_u: float | None = None  # [kg/m³]; None: DEFAULT_DENSITY_BOUND / √3 for a given density
+    gravity_u: float | None = None  # [m/s²]; None: from the choice of gravity (see above)
+    angle_u: float = math.radians(0.1)  # [rad]
 
     def reading(self, reading_m: float) -> ManometerReading:
         """A reading of ``reading_m`` [m] along the tube on this manometer."""
         return ManometerReading(reading_m, self.angle, self.liquid_density, self.liquid_temperature,
                                 self.gravity, self.air_density, self.well_area_ratio)
+
+    def reference_uncertainty(self) -> tuple[float, float]:
+        r"""Standard uncertainty of a reference Δp = (ρ_l − ρ_a) g L (sin θ + a/A) (JCGM 100:2008 §5.1.2).
+
+        .. math::
+            u_{point} = \frac{\partial \Delta p}{\partial L}\frac{\delta}{\sqrt6}, \qquad
+            u_{rel}^2 = \left(\frac{u_\rho}{\rho_l - \rho_a}\right)^2 + \left(\frac{u_g}{g}\right)^2
+                      + \left(\frac{\cos\theta\, u_\theta}{\sin\theta + a/A}\right)^2
+
+        Every reading is the difference of two scale readings (the two menisci of a U-tube, or the meniscus and
+        its zero on a well gauge), each with u = δ/√12 for a scale division δ (GUM F.2.2.1), so u(L) = δ/√6,
+        independent between points. Water's u(ρ) is |dρ/dT| u(T) (Tanaka et al. 2001, by central difference).
+        The relative part is common to every point and every channel on the manifold.
+
+        Returns
+        -------
+        tuple of float
+            ``(u_point, u_rel)``: the per-point reading term [Pa] and the common relative term [-].
+        """
+        rho = self.liquid_density
+        if rho is None:
+            t, dt = self.liquid_temperature, 0.01
+            rho = float(water_density(t))
+            u_rho = abs(float(water_density(t + dt) - water_density(t - dt)) / (2 * dt)) * self.temperature_u
+        else:
+            u_rho = self.density_u if self.density_u is not None else DEFAULT_DENSITY_BOUND / math.sqrt(3.0)
+        if self.gravity_u is not None:
+            u_g = self.gravity_u
+        else:
+            standard = math.isclose(self.gravity, STANDARD_GRAVITY, rel_tol=0.0, abs_tol=1e-12)
+            u_g = (_standard_gravity_bound() if standard else GRAVITY_ANOMALY_BOUND) / math.sqrt(3.0)
+        lever = math.sin(self.angle) + self.well_area_ratio
+        u_rel = math.sqrt((u_rho / (rho - self.air_density)) ** 2 + (u_g / self.gravity) ** 2
+                          + (math.cos(self.angle) * self.angle_u / lever) ** 2)
+        u_point = manometer_pressure(self.reading(self.reading_resolution / math.sqrt(6.0)))
+        return u_point, u_rel
 
 
 @dataclass(frozen=True, eq=False)
@@ -79,6 +144,9 @@ class CalibrationInput:
     blocks: dict[str, np.ndarray] = field(default_factory=dict)  # label → scans × channels (file-given counts)
     operator_note: str = ""
     drift_tolerance: float | None = None  # [Pa or N]
+    # per point: None (or an empty tuple: every point) for a manometer reading, whose uncertainty comes from
+    # the manometer; a number for a reference sensor's stated standard uncertainty [Pa]
+    reference_u: tuple[float | None, ...] = ()
 
 
 def manometer_from_table(table: dict, source: str) -> Manometer:
@@ -100,9 +168,25 @@ def manometer_from_table(table: dict, source: str) -> Manometer:
             gravity=gravity,
             air_density=float(table.get("air_density_kg_m3", 0.0)),
             well_area_ratio=float(table.get("well_area_ratio", 0.0)),
+            **_uncertainty_inputs(table),
         )
     except (TypeError, ValueError) as exc:
         raise RigError(source, [RigIssue("manometer", str(exc))]) from None
+
+
+def _uncertainty_inputs(table: dict) -> dict:
+    """The ``[manometer]`` table's uncertainty keys → :class:`Manometer` fields (SI); absent keys keep the defaults."""
+    keys = {"reading_resolution_mm": ("reading_resolution", 1e-3), "liquid_temperature_u_c": ("temperature_u", 1.0),
+            "liquid_density_u_kg_m3": ("density_u", 1.0), "gravity_u_m_s2": ("gravity_u", 1.0),
+            "angle_u_deg": ("angle_u", math.pi / 180.0)}
+    out = {}
+    for key, (name, factor) in keys.items():
+        if key in table:
+            value = float(table[key])
+            if not value >= 0.0:
+                raise ValueError(f"manometer.{key} must be a standard uncertainty ≥ 0, got {table[key]!r}")
+            out[name] = value * factor
+    return out
 
 
 def _default_channels(rig: Rig) -> tuple[str, ...]:
@@ -125,12 +209,30 @@ def _reference(point: dict, manometer: Manometer, key: str, source: str) -> floa
         raise RigError(source, [RigIssue(key, "give one of reading_mm (manometer) or reference_pa (reference sensor), not both")])
     if "reading_mm" not in point and "reference_pa" not in point:
         return None
+    if "reference_u_pa" in point and "reference_pa" not in point:
+        raise RigError(source, [RigIssue(f"{key}.reference_u_pa", "belongs to a reference_pa point (a manometer "
+                                         "reading's uncertainty comes from the [manometer] table)")])
     try:
         if "reference_pa" in point:
             return float(point["reference_pa"])
         return manometer_pressure(manometer.reading(float(point["reading_mm"]) * 1e-3))
     except (TypeError, ValueError) as exc:
         raise RigError(source, [RigIssue(key, str(exc))]) from None
+
+
+def _reference_u(point: dict, key: str, source: str) -> float | None:
+    """A reference sensor's stated standard uncertainty [Pa] (default 0: taprig cannot know it); None for a
+    manometer point, whose uncertainty comes from the manometer."""
+    if "reference_pa" not in point:
+        return None
+    try:
+        value = float(point.get("reference_u_pa", 0.0))
+    except (TypeError, ValueError):
+        value = -1.0
+    if not value >= 0.0:
+        raise RigError(source, [RigIssue(f"{key}.reference_u_pa", "expected a standard uncertainty ≥ 0 [Pa]",
+                                         point.get("reference_u_pa"))])
+    return value
 
 
 def parse_input_toml(text: str, source: str, rig: Rig) -> CalibrationInput:
@@ -146,18 +248,19 @@ def parse_input_toml(text: str, source: str, rig: Rig) -> CalibrationInput:
         raise RigError(source, [RigIssue("rig", f"input is for another rig than {rig.id!r}", data["rig"])])
     channels = _check_channels(tuple(data.get("channels", _default_channels(rig))), rig, source)
     manometer = manometer_from_table(data.get("manometer", {}), source)
-    blocks, refs, labels = {}, [], []
+    blocks, refs, labels, ref_u = {}, [], [], []
     for step in ("zero", "end_zero"):
         if step in data:
             blocks[step] = _block(data[step].get("counts"), f"{step}.counts", len(channels), source)
     for k, point in enumerate(data.get("points", [])):
         label = f"point {k + 1}"
         refs.append(_reference(point, manometer, f"points[{k}]", source))
+        ref_u.append(_reference_u(point, f"points[{k}]", source))
         labels.append(label)
         if "counts" in point:
             blocks[label] = _block(point["counts"], f"points[{k}].counts", len(channels), source)
     return CalibrationInput(channels, manometer, tuple(refs), tuple(labels), blocks,
-                            str(data.get("operator_note", "")), data.get("drift_tolerance_pa"))
+                            str(data.get("operator_note", "")), data.get("drift_tolerance_pa"), tuple(ref_u))
 
 
 def _check_channels(channels: tuple[str, ...], rig: Rig, source: str) -> tuple[str, ...]:
@@ -218,7 +321,12 @@ def calibrate(rig: Rig, plan: CalibrationInput, counts_source: CountsSource, dat
     span = None
     if plan.labels:
         means = np.vstack([_required(counts_source, label).mean(axis=0) for label in plan.labels])
-        span = fit_span(plan.references, means, sensors, None if zero is None else zero.mean)
+        u_point, u_rel = plan.manometer.reference_uncertainty()
+        # guided mode types every point in as a manometer reading and replaces the labels: all manometer points
+        given = plan.reference_u if len(plan.reference_u) == len(plan.labels) else (None,) * len(plan.labels)
+        span = fit_span(plan.references, means, sensors, None if zero is None else zero.mean,
+                        reference_u=[u_point if g is None else g for g in given],
+                        reference_u_rel=[u_rel if g is None else 0.0 for g in given])
     drift = None
     end_block = counts_source("end_zero")
     if zero is not None and end_block is not None:

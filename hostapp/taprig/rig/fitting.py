@@ -112,6 +112,8 @@ class SpanFit:
     residual_rms: np.ndarray  # [SI]
     linearity_pct_fs: np.ndarray  # max |residual| / full scale · 100 [% FS]
     flags: tuple[tuple[str, ...], ...]  # per channel, empty when within tolerance
+    gain_u_reference: np.ndarray | None = None  # relative standard uncertainty of the gain from the reference [-]
+    zero_std_error: np.ndarray | None = None  # a free zero's standard error [counts]; None through a given zero
 
     @property
     def ok(self) -> np.ndarray:
@@ -136,6 +138,37 @@ def _least_squares(reference: np.ndarray, counts: np.ndarray, zero: np.ndarray |
     return (d * reference[:, None]).sum(axis=0) / sxx, np.asarray(zero, dtype=float)
 
 
+def _gain_reference_u(ref: np.ndarray, c: np.ndarray, zero: np.ndarray, m: np.ndarray, free: bool,
+                      u_point: np.ndarray, u_rel: np.ndarray) -> np.ndarray:
+    """Relative standard uncertainty of each channel's fitted slope from the reference pressures (GUM §5.1, §5.2).
+
+    The slope is linear in the references, m = Σ w_i p_i with w_i = d_i / Σ d² (d = counts − zero, a line through
+    a given zero) or (c_i − c̄)/S_cc (free zero). Point errors independent between points (u_point [Pa]) add as
+    Σ (w_i u_i)²; a relative error common to the points (density, gravity, angle: r_i [-]) moves them together,
+    (Σ w_i p_i r_i)². Divided by m for the relative figure.
+    """
+    d = c - (c.mean(axis=0) if free else zero)
+    w = d / (d**2).sum(axis=0)  # ∂m/∂p_i (a free zero's Σ(c_i − c̄) = 0 removes the p̄ term)
+    independent = ((w * u_point[:, None]) ** 2).sum(axis=0)
+    common = ((w * (ref * u_rel)[:, None]).sum(axis=0)) ** 2
+    return np.sqrt(independent + common) / np.abs(m)
+
+
+def _free_zero_std_error(residuals: np.ndarray, c: np.ndarray, zero: np.ndarray, m: np.ndarray) -> np.ndarray | None:
+    """Standard error of a fitted zero [counts]: the line's prediction error there, s √(1/n + (c0 − c̄)²/S_cc) / |m|.
+
+    Least-squares prediction interval of a straight line (common practice); s from the residuals with n − 2
+    degrees of freedom, so it needs at least three points.
+    """
+    n = residuals.shape[0]
+    if n < 3:
+        return None
+    s = np.sqrt((residuals**2).sum(axis=0) / (n - 2))
+    c_mean = c.mean(axis=0)
+    sxx = ((c - c_mean) ** 2).sum(axis=0)
+    return s * np.sqrt(1.0 / n + (zero - c_mean) ** 2 / sxx) / np.abs(m)
+
+
 def fit_span(
     reference: Sequence[float],
     counts: np.ndarray,
@@ -143,6 +176,8 @@ def fit_span(
     zero_counts: np.ndarray | None = None,
     linearity_tolerance_pct_fs: float | Sequence[float] | None = None,
     gain_tolerance: float = DEFAULT_GAIN_TOLERANCE,
+    reference_u: float | Sequence[float] = 0.0,
+    reference_u_rel: float | Sequence[float] = 0.0,
 ) -> SpanFit:
     """Fit gain and zero per channel from span points on a common manifold (numpy least squares).
 
@@ -161,6 +196,15 @@ def fit_span(
         Largest allowed residual [% FS]; default each sensor's ``accuracy_pct_fs``.
     gain_tolerance : float
         Largest allowed ``|gain − 1|`` [-].
+    reference_u : float or sequence
+        Standard uncertainty of each reference pressure that is independent between points (a manometer's
+        reading) [Pa].
+    reference_u_rel : float or sequence
+        Relative standard uncertainty of each reference common to all points (liquid density, gravity, tube
+        angle) [-]; 0 for a point whose reference shares nothing with the others.
+
+    The gain's relative standard uncertainty from the references is ``gain_u_reference``
+    (:func:`_gain_reference_u`); a free zero's standard error is ``zero_std_error``.
     """
     ref = np.asarray(reference, dtype=float)
     c = np.atleast_2d(np.asarray(counts, dtype=float))
@@ -187,7 +231,12 @@ def fit_span(
             out.append("a span point is saturated or outside the sensor's range")
         flags.append(tuple(out))
     rms = np.sqrt((residuals**2).mean(axis=0))
-    return SpanFit(gain, zero, residuals, rms, linearity, tuple(flags))
+    u_point = np.broadcast_to(np.asarray(reference_u, dtype=float), ref.shape)
+    u_rel = np.broadcast_to(np.asarray(reference_u_rel, dtype=float), ref.shape)
+    free = zero_counts is None
+    gain_u = _gain_reference_u(ref, c, zero, m, free, u_point, u_rel)
+    zero_se = _free_zero_std_error(residuals, c, zero, m) if free else None
+    return SpanFit(gain, zero, residuals, rms, linearity, tuple(flags), gain_u, zero_se)
 
 
 def zeroable(rig: Rig, name: str) -> bool:
@@ -226,5 +275,9 @@ def build_calibration(
         if span is not None:
             entry.update(zero_counts=float(span.zero_counts[k]), gain=float(span.gain[k]), n_points=n_points,
                          residual_rms=float(span.residual_rms[k]), linearity_pct_fs=float(span.linearity_pct_fs[k]))
+            if span.gain_u_reference is not None:
+                entry["reference_u_rel"] = float(span.gain_u_reference[k])
+            if span.zero_std_error is not None and not use_zero:
+                entry["zero_std_error"] = float(span.zero_std_error[k])
         entries[name] = ChannelCalibration(**entry)
     return Calibration(rig_id=rig.id, date=date, operator_note=operator_note, channels=entries)

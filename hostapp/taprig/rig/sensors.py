@@ -17,6 +17,14 @@ Kinds (the ``kind`` key of a ``[sensors.NAME]`` table):
     in N, or a pre-scaled pressure in Pa).
 ``differential``
     A differential sensor with a scale factor in counts per Pa: ``p = (counts − zero_counts) / counts_per_pa``.
+
+Accuracy. ``accuracy_pct_fs`` is the datasheet's total error band (± % of the full-scale span). A sensor may say
+how that band splits (common practice for how datasheets build a total error band): ``offset_pct_fs`` (the zero
+offset, with its temperature shift; a wind-off zero removes it), ``span_pct_fs`` (the gain error at full span; a
+span calibration removes it) and ``linearity_pct_fs`` (non-linearity and hysteresis; a span fit's residuals take
+its place). The parts and the unattributed rest combine in quadrature to the total. Without the split the whole
+band is unattributed and nothing a calibration does removes any of it. Each part is a rectangular bound
+(standard uncertainty bound/√3, JCGM 100:2008 §4.3.7); see :meth:`SensorBase.datasheet_uncertainty`.
 """
 
 from __future__ import annotations
@@ -63,13 +71,38 @@ Range = Annotated[tuple[float, float], AfterValidator(_ordered)]
 NonZero = Annotated[float, AfterValidator(_nonzero)]
 
 
+class CalibrationLevel(str, Enum):
+    """How far a channel has been calibrated, which decides the datasheet parts still in its uncertainty."""
+
+    NOMINAL = "nominal"  # the datasheet transfer function: the whole band
+    ZEROED = "zeroed"  # a measured zero (wind-off or no-load): the band less its offset part
+    SPANNED = "spanned"  # a span fit against a reference: only the unattributed rest of the band
+
+
+#: Relative tolerance on "the parts fit inside the total band" (a file's rounded figures).
+_PARTS_TOLERANCE = 1e-9
+
+
 class SensorBase(BaseModel):
     """Methods shared by every sensor kind; a kind supplies ``slope``, ``intercept``, ``range`` and ``rails``."""
 
     model_config = ConfigDict(frozen=True, extra="forbid")
 
-    accuracy_pct_fs: float = Field(ge=0.0, le=100.0, description="± accuracy bound [% of full-scale span]")
+    accuracy_pct_fs: float = Field(ge=0.0, le=100.0, description="± total error band [% of full-scale span]")
+    offset_pct_fs: float = Field(0.0, ge=0.0, le=100.0, description="± zero-offset part of the band [% FS]")
+    span_pct_fs: float = Field(0.0, ge=0.0, le=100.0, description="± span (gain) part at full span [% FS]")
+    linearity_pct_fs: float = Field(0.0, ge=0.0, le=100.0, description="± non-linearity and hysteresis part [% FS]")
     description: str = ""
+
+    @model_validator(mode="after")
+    def _parts_inside_band(self) -> SensorBase:
+        parts = math.sqrt(self.offset_pct_fs**2 + self.span_pct_fs**2 + self.linearity_pct_fs**2)
+        if parts > self.accuracy_pct_fs * (1.0 + _PARTS_TOLERANCE):
+            raise ValueError(
+                f"offset_pct_fs, span_pct_fs and linearity_pct_fs combine in quadrature to {parts:.4g} % FS, more "
+                f"than accuracy_pct_fs = {self.accuracy_pct_fs:g}; the parts must fit inside the total band"
+            )
+        return self
 
     # -- supplied by each kind (pydantic's model metaclass is an ABCMeta, so these are enforced) ---------------
     @property
@@ -117,6 +150,42 @@ class SensorBase(BaseModel):
     def accuracy(self) -> float:
         """Standard uncertainty [SI unit]: the bound read as a rectangular distribution, bound / √3 (GUM 4.3.7)."""
         return self.accuracy_bound / math.sqrt(3.0)
+
+    @property
+    def unattributed_pct_fs(self) -> float:
+        """The band's unattributed part, √(total² − offset² − span² − linearity²) [% FS]."""
+        rest = self.accuracy_pct_fs**2 - self.offset_pct_fs**2 - self.span_pct_fs**2 - self.linearity_pct_fs**2
+        return math.sqrt(max(rest, 0.0))
+
+    def datasheet_uncertainty(self, level: CalibrationLevel = CalibrationLevel.NOMINAL) -> tuple[float, float]:
+        r"""The datasheet's share of a reading's standard uncertainty after a calibration at ``level``.
+
+        .. math::
+            u_{const} = \frac{FS}{100\sqrt3}\sqrt{a^2 - r^2}, \qquad u_{gain} = \frac{s}{100\sqrt3}
+
+        with a the total band, o, s, l the offset, span and linearity parts, and r² what leaves the constant
+        term: s² (NOMINAL), o² + s² (ZEROED) or o² + s² + l² (SPANNED, where the calibration's own uncertainty
+        takes their place and u_gain = 0). The span part is a gain error: its effect on a reading p grows with
+        the reading, u_gain · |p| (an error of s % of FS at the full span), and vanishes at zero. A sensor without
+        the split (o = s = l = 0) keeps its whole band as the constant term at every level.
+
+        Parameters
+        ----------
+        level : CalibrationLevel
+            What the channel's calibration did.
+
+        Returns
+        -------
+        tuple of float
+            ``(u_const, u_gain)``: a constant standard uncertainty [SI unit] and a relative one of the gain [-],
+            both rectangular bounds / √3 (JCGM 100:2008 §4.3.7).
+        """
+        fs, root3 = self.full_scale / 100.0, math.sqrt(3.0)
+        a2, o2, s2 = self.accuracy_pct_fs**2, self.offset_pct_fs**2, self.span_pct_fs**2
+        if level is CalibrationLevel.SPANNED:
+            return fs * self.unattributed_pct_fs / root3, 0.0
+        removed = s2 + (o2 if level is CalibrationLevel.ZEROED else 0.0)
+        return fs * math.sqrt(max(a2 - removed, 0.0)) / root3, self.span_pct_fs / 100.0 / root3
 
     def counts_to_si(self, counts: ArrayLike) -> np.ndarray:
         """Convert counts to the SI value, ``slope · counts + intercept`` (vectorised) [Pa or N]."""
