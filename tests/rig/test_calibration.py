@@ -172,3 +172,22 @@ def test_fit_recovers_any_gain_and_zero(gain: float, zero: float) -> None:
     fit = fit_span(p, counts, SENSORS)
     assert fit.gain == pytest.approx([gain] * 3, rel=1e-7)
     assert fit.zero_counts == pytest.approx([zero] * 3, rel=1e-9)
+
+
+def test_a_new_zero_keeps_the_span():
+    # value = gain · slope · (counts − zero): a fresh zero must change only zero_counts (common practice).
+    from datetime import datetime, timezone
+
+    from taprig.rig import Calibration, ChannelCalibration
+
+    when = datetime(2026, 5, 1, tzinfo=timezone.utc)
+    spanned = Calibration(rig_id="r", date=when, channels={
+        "a": ChannelCalibration(zero_counts=100.0, gain=1.03, zero_std_error=0.2, n_points=5, residual_rms=0.4)})
+    zero = Calibration(rig_id="r", date=when.replace(hour=3), operator_note="zero", channels={
+        "a": ChannelCalibration(zero_counts=104.5, zero_std_error=0.1),
+        "b": ChannelCalibration(zero_counts=7.0, zero_std_error=0.3)})
+    merged = spanned.with_zero(zero)
+    a = merged.channels["a"]
+    assert (a.zero_counts, a.zero_std_error, a.gain, a.n_points, a.residual_rms) == (104.5, 0.1, 1.03, 5, 0.4)
+    assert merged.channels["b"] == zero.channels["b"] and merged.date == zero.date
+    assert spanned.channels["a"].zero_counts == 100.0  # frozen: the original is untouched

@@ -11,6 +11,10 @@ with ``slope`` the sensor's nominal SI value per count (:mod:`taprig.rig.sensors
   corrected, and a session can be re-reduced with a new span and the same zero.
 - ``gain``: a dimensionless correction of the nominal slope (1 = the datasheet transfer function).
 
+and, for the uncertainty budget, the zero's standard error, the span fit's rms residual and number of points, and
+``reference_u_rel``: the relative standard uncertainty the reference standard (manometer) gives the gain. That
+last one is common to every channel spanned on the same manifold against the same manometer.
+
 A channel without an entry uses its sensor's nominal transfer function (``zero_counts = −intercept/slope``,
 ``gain = 1``). Absolute channels are never wind-off zeroed (their zero is vacuum, not the room).
 """
@@ -30,6 +34,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from taprig.rig.errors import RigError, RigIssue, issues_from_validation
 from taprig.rig.model import Rig
+from taprig.rig.sensors import CalibrationLevel
 
 FORMAT_VERSION = 1
 
@@ -45,7 +50,20 @@ class ChannelCalibration(BaseModel):
     residual_rms: float | None = Field(None, ge=0.0, description="rms of the span-fit residuals [Pa or N]")
     linearity_pct_fs: float | None = Field(None, ge=0.0, description="largest span-fit residual [% FS]")
     n_points: int = Field(0, ge=0, description="span points behind the gain (0: nominal gain)")
+    reference_u_rel: float | None = Field(
+        None, ge=0.0, description="relative standard uncertainty of the gain from the reference standard [-]")
     flags: tuple[str, ...] = Field((), description="out-of-tolerance findings, for a person")
+
+    @property
+    def level(self) -> CalibrationLevel:
+        """SPANNED after a span fit, ZEROED with a measured zero (its standard error known), else NOMINAL.
+
+        A zero without a standard error (typed in, or from an older tool) is not trusted to have removed the
+        sensor's offset: the datasheet band stays whole.
+        """
+        if self.n_points > 0:
+            return CalibrationLevel.SPANNED
+        return CalibrationLevel.ZEROED if self.zero_std_error is not None else CalibrationLevel.NOMINAL
 
 
 class Calibration(BaseModel):
@@ -72,6 +90,20 @@ class Calibration(BaseModel):
     def flagged(self) -> dict[str, tuple[str, ...]]:
         """Channels with out-of-tolerance flags → their flags."""
         return {n: c.flags for n, c in self.channels.items() if c.flags}
+
+    def with_zero(self, zero: Calibration) -> Calibration:
+        """This calibration with the zeros of ``zero`` (a fresh wind-off zero) and everything else kept.
+
+        A channel's span (gain, fit statistics, reference uncertainty) survives a new zero: ``value = gain · slope ·
+        (counts − zero_counts)``, so only ``zero_counts`` and its standard error change. Channels only ``zero``
+        names are taken from it whole. Date and note are the new zero's.
+        """
+        channels = dict(self.channels)
+        for name, new in zero.channels.items():
+            old = channels.get(name)
+            channels[name] = new if old is None else old.model_copy(
+                update={"zero_counts": new.zero_counts, "zero_std_error": new.zero_std_error})
+        return self.model_copy(update={"channels": channels, "date": zero.date, "operator_note": zero.operator_note})
 
 
 @dataclass(frozen=True, eq=False)

@@ -230,14 +230,19 @@ class Acquisition:
         return mean
 
     def zero(self, seconds: float = 2.0, note: str = "") -> Calibration:
-        """Take a wind-off zero of every channel from the last ``seconds``, apply it and record it."""
+        """Take a wind-off zero of every channel from the last ``seconds``, apply it and record it.
+
+        The spans of the calibration in force are kept; only the zeros change (absolute channels keep theirs).
+        """
         block = self.recent(seconds)
         if block is None or block.n_scans < 2:
             raise AcquisitionError("no data yet to take a zero from")
         names = [self.rig.channel(i).name for i in block.channels]
         calibration = build_calibration(self.rig, names, datetime.now(timezone.utc), zero=wind_off_zero(block.counts),
                                         operator_note=note or "wind-off zero")
-        reducer = Reducer(self.rig, calibration, self.reducer.ambient, self.reducer.options)
+        if self.reducer.calibration is not None:  # keep the spans of the calibration in force
+            calibration = self.reducer.calibration.with_zero(calibration)
+        reducer = self.reducer.with_calibration(calibration)
         with self._schedule_lock:
             host_ns = time.time_ns()
             self._reducers.append((host_ns, reducer))
