@@ -83,3 +83,9 @@ def test_missing_port_is_one_line(tmp_path):
                  "-o", str(tmp_path / "x.taprig"))
     assert rec.returncode == 1 and "Traceback" not in rec.stderr
     assert "/dev/taprig-no-such-port" in rec.stderr
+
+
+def test_a_run_that_never_started_leaves_no_file(tmp_path):
+    out = tmp_path / "x.taprig"
+    rec = taprig("record", "--rig", str(RIG), "--port", "/dev/taprig-no-such-port", "-o", str(out))
+    assert rec.returncode == 1 and not out.exists()  # so the same command can be run again once fixed

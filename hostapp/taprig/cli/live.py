@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 
+from taprig.reduce import ScanFlag
 from taprig.runtime.acquisition import LiveState
 
 
@@ -23,8 +24,12 @@ def live_line(state: LiveState) -> str:
     parts = []
     if b is not None:
         parts.append(f"q {_mean(b.q_pa):7.1f} Pa")
-        parts.append(f"V {_mean(b.v_ms):5.1f} m/s")
-        parts.append(f"Re {_mean(b.re):8.2e}")
+        flowing = (b.scan_flags & ScanFlag.NO_FLOW) == 0
+        if flowing.any():  # speed and Re of wind-off noise (q ≈ 0, either sign) mean nothing
+            parts.append(f"V {_mean(b.v_ms[flowing]):5.1f} m/s")
+            parts.append(f"Re {_mean(b.re[flowing]):8.2e}")
+        else:
+            parts.append("no flow")
         alpha = _mean(b.alpha_rad)
         if math.isfinite(alpha):
             parts.append(f"α {math.degrees(alpha):5.1f}°")

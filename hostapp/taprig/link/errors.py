@@ -136,6 +136,8 @@ def open_error(port: str, exc: BaseException) -> LinkError:
         return PortPermissionError(_permission_message(port))
     if "inappropriate ioctl" in lowered or code in (errno.ENOTTY, errno.ENXIO, errno.ENODEV, errno.EISDIR):
         return NotSerialDeviceError(f"{port} is not a serial device ({text})")
+    if not text.startswith(f"cannot open {port}"):  # the sim:// handler already names the URL
+        text = f"cannot open {port}: {text}"
     if isinstance(exc, ValueError) and "url" in lowered:
-        return PortNotFoundError(f"cannot open {port}: {text}")
-    return LinkError(f"cannot open {port}: {text}")
+        return PortNotFoundError(text)
+    return LinkError(text)

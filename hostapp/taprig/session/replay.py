@@ -214,6 +214,7 @@ class Replay:
         self.speed, self.seek_s, self.batch_scans = speed, float(seek_s), int(batch_scans)
         self.clock = clock or SystemClock()
         self.start_ns = session_start_ns(self.reader)
+        self._first_chunk_ns = self.reader.chunk_summary()[2] or 0
         self.total_chunks = self.reader.chunk_summary()[0]
         self.decoder = StreamDecoder()
         self.first_t_ns: int | None = None
@@ -234,8 +235,8 @@ class Replay:
 
     @property
     def reducer(self) -> Reducer:
-        """The reducer in force at the start of the session (the whole run's, unless it was zeroed mid-run)."""
-        return self._reducers[self.reducer_at(self.start_ns or 0)]
+        """The reducer in force at the first recorded chunk (the whole run's, unless it was zeroed mid-run)."""
+        return self._reducers[self.reducer_at(self._first_chunk_ns)]
 
     @property
     def counters(self) -> Counters:

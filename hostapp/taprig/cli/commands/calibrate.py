@@ -131,7 +131,10 @@ def run(args, ask: Callable[[str], str] = input, say: Callable[[str], None] = pr
     if args.counts:
         by_order = {"zero": plan.blocks.get("zero"), "end_zero": plan.blocks.get("end_zero")}
         by_order |= {f"point {k + 1}": plan.blocks[label] for k, label in enumerate(plan.labels)}
-        plan, source = guided(plan, by_order.get, ask, say)
+        try:
+            plan, source = guided(plan, by_order.get, ask, say)
+        except EOFError:
+            raise UserError("the input ended before the calibration was complete; nothing was written") from None
     elif any(r is None for r in plan.references):
         raise UserError(f"{args.from_file}: every point needs reading_mm (or use --counts for guided mode)")
     try:

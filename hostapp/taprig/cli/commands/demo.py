@@ -61,7 +61,9 @@ def run(args) -> int:
     from taprig.runtime.sweep import run_sweep, sweep_lift_curve, wait_device_time
 
     print(SAFETY, file=sys.stderr)
-    query = f"seed={args.seed}" + ("&speed=max" if args.fast else "")
+    # In compressed time the simulated clock outruns the host's wall-clock heartbeat, so the simulated board's
+    # watchdog would trip at once (docs/simulator.md): it is switched off there, and only there.
+    query = f"seed={args.seed}" + ("&speed=max&watchdog_ms=0" if args.fast else "")
     acq, out = open_run(args, f"sim://?{query}", "sessions", stem="demo")
     print(f"simulated rig {acq.rig.name!r} ({acq.description.firmware}, {len(acq.rig.taps)} taps), "
           f"recording to {out}")

@@ -54,8 +54,17 @@ def open_run(args, port: str, default_dir: str, stem: str | None = None):
         acquisition.open(args.rate)
     except AcquisitionError as exc:
         writer.close()
+        _remove_unused(out)
         raise UserError(str(exc)) from None
     return acquisition, out
+
+
+def _remove_unused(out) -> None:
+    """Remove a session file that never got past its header (the run did not start), so the name is free."""
+    from pathlib import Path
+
+    for path in (Path(out), Path(f"{out}-wal"), Path(f"{out}-shm")):
+        path.unlink(missing_ok=True)
 
 
 def print_summary(acquisition, out, stream=sys.stdout) -> None:
