@@ -23,15 +23,18 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
-def open_run(args, port: str, default_dir: str, stem: str | None = None):
-    """Build and open an acquisition from the common options: returns (acquisition, output path)."""
+def open_run(args, port: str, default_dir: str, stem: str | None = None, rig=None):
+    """Build and open an acquisition from the common options: returns (acquisition, output path).
+
+    ``rig`` is the already loaded ``--rig`` when the caller needed it first (it is parsed only once).
+    """
     from taprig.cli.runopts import ambient_arg, build_reducer, load_calibration_arg, load_rig_arg, new_output_path
     from taprig.link import Link
     from taprig.runtime.acquisition import Acquisition, AcquisitionError, session_meta
     from taprig.session.store import SessionError, SessionWriter
     from taprig.sim import with_rig
 
-    rig = load_rig_arg(args.rig)
+    rig = rig or load_rig_arg(args.rig)
     calibration = load_calibration_arg(args.calibration, rig)
     ambient = ambient_arg(args, rig)
     reducer = build_reducer(rig, calibration, ambient)
@@ -67,8 +70,9 @@ def _remove_unused(out) -> None:
         path.unlink(missing_ok=True)
 
 
-def print_summary(acquisition, out, stream=sys.stdout) -> None:
+def print_summary(acquisition, out, stream=None) -> None:
     """The last lines of a run: counters, where the session is, and any recording error."""
+    stream = stream or sys.stdout  # looked up now: a default bound at import would outlive a replaced stdout
     c = acquisition.link.counters.as_dict()
     print(f"recorded {acquisition.scans} scans to {out}", file=stream)
     print("counters: " + ", ".join(f"{k} {v}" for k, v in c.items() if k != "bytes"), file=stream)
