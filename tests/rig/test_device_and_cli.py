@@ -37,6 +37,9 @@ def test_channel_differences_are_named() -> None:
     wrong = replace(d, channels=d.channels[:1] + (ChannelInfo("u1", Encoding.I16),) + d.channels[2:])
     assert RIG.differences(fewer) == ["the device has 8 channel(s), the rig file describes 9",
                                       "channel 'lift' (index 8) is not on the device, which has 8 channel(s)"]
+    few = replace(d, channels=d.channels[:3])
+    assert RIG.differences(few)[1].startswith("6 of the rig's channels (")  # one sentence, not six
+    assert len(RIG.differences(few)) == 2
     more = replace(d, channels=d.channels + (ChannelInfo("spare", Encoding.U16),))
     assert RIG.differences(more) == ["the device has 10 channel(s), the rig file describes 9; "
                                      "the rig file does not describe device channel(s) [9]"]

@@ -25,7 +25,7 @@ def live_line(state: LiveState) -> str:
     if b is not None:
         parts.append(f"q {_mean(b.q_pa):7.1f} Pa")
         flowing = (b.scan_flags & ScanFlag.NO_FLOW) == 0
-        if flowing.any():  # speed and Re of wind-off noise (q ≈ 0, either sign) mean nothing
+        if flowing.mean() > 0.5:  # speed and Re of wind-off noise (q ≈ 0, either sign) mean nothing
             parts.append(f"V {_mean(b.v_ms[flowing]):5.1f} m/s")
             parts.append(f"Re {_mean(b.re[flowing]):8.2e}")
         else:

@@ -288,9 +288,15 @@ def _channel_differences(rig: Rig, description: Description) -> list[str]:
         unknown = sorted(set(range(n)) - {ch.index for ch in rig.channels})
         extra = f"; the rig file does not describe device channel(s) {unknown}" if unknown else ""
         out.append(f"the device has {n} channel(s), the rig file describes {len(rig.channels)}{extra}")
+    missing = [ch for ch in rig.channels if ch.index >= n]
+    if len(missing) > 3:  # one sentence, not one per tap, when the rig file is plainly for another board
+        out.append(f"{len(missing)} of the rig's channels ({missing[0].name!r} … {missing[-1].name!r}, indices "
+                   f"{missing[0].index}–{missing[-1].index}) are not on the device, which has {n} channel(s)")
+    else:
+        out += [f"channel {ch.name!r} (index {ch.index}) is not on the device, which has {n} channel(s)"
+                for ch in missing]
     for ch in rig.channels:
         if ch.index >= n:
-            out.append(f"channel {ch.name!r} (index {ch.index}) is not on the device, which has {n} channel(s)")
             continue
         sent = description.channels[ch.index].encoding
         if sent != ch.encoding:

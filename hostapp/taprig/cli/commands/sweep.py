@@ -106,7 +106,8 @@ def sweep(args, port: str, stem: str | None = None) -> int:
                            on_point=lambda p: print(point_line(p), flush=True))
         curve = sweep_lift_curve(points)
         per_deg = math.pi / 180
-        print(f"\nlift slope {curve.slope * per_deg:.4f} ± {curve.u_slope * per_deg:.4f} per degree over "
+        print(f"\nlift slope {curve.slope * per_deg:.4f} ± {curve.u_slope * per_deg:.4f} (scatter about the line) "
+              f"per degree over "
               f"{math.degrees(curve.linear_range[0]):.1f}…{math.degrees(curve.linear_range[1]):.1f}° "
               f"(thin-airfoil theory: 0.1097), zero lift at {math.degrees(curve.alpha_zero_lift):.2f}° "
               "(angles corrected for the walls)")
