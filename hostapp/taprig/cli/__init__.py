@@ -26,6 +26,17 @@ class UserError(Exception):
         self.exit_code = exit_code
 
 
+def program_name() -> str:
+    """How the person ran taprig, for hints they can paste: ``taprig``, or ``.venv/bin/taprig`` when not on PATH."""
+    import shutil
+
+    invoked = sys.argv[0] if sys.argv and sys.argv[0] else "taprig"
+    if os.path.basename(invoked) != "taprig" or shutil.which("taprig") == os.path.abspath(invoked):
+        return "taprig"
+    relative = os.path.relpath(invoked)
+    return relative if not relative.startswith("..") else invoked
+
+
 def build_parser() -> argparse.ArgumentParser:
     """Build the top-level parser with every subcommand module registered."""
     from taprig.cli import commands

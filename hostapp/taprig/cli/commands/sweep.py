@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 import sys
 
-from taprig.cli import UserError
+from taprig.cli import UserError, program_name
 from taprig.cli.runopts import add_rig_options
 
 SAFETY = ("Safety on a real rig: fan guards on, eye protection with compressed air, never defeat an interlock; "
@@ -122,7 +122,8 @@ def sweep(args, port: str, stem: str | None = None) -> int:
     finally:
         acq.close()  # every actuator to its safe value, also on Ctrl-C
     print_summary(acq, out)
-    print(f"next: taprig info {out}   taprig replay {out} --fast   taprig export {out} --format csv -o run.csv")
+    me = program_name()
+    print(f"next: {me} info {out}   {me} replay {out} --fast   {me} export {out} --format csv -o run.csv")
     return 0
 
 
