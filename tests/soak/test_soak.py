@@ -70,9 +70,9 @@ def test_soak_with_faults(tmp_path):
     # The record is sound and decodes to the live counters.
     with SessionReader(tmp_path / "soak.taprig") as reader:
         assert reader.integrity_check() == "ok"
-    replay = Replay(tmp_path / "soak.taprig")
-    scans = sum(b.raw.n_scans for step in replay for b in step.blocks)
-    assert replay.counters.as_dict() == live.as_dict() and scans == acq.scans
+    with Replay(tmp_path / "soak.taprig") as replay:
+        scans = sum(b.raw.n_scans for step in replay for b in step.blocks)
+        assert replay.counters.as_dict() == live.as_dict() and scans == acq.scans
     # Memory flat once the 30 s raw window and the caches are full (from the second sample on): what Python and
     # numpy hold must not grow; the resident size may breathe with the allocator but must not run away.
     if len(traced) >= 4:

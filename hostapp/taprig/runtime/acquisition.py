@@ -19,10 +19,12 @@ from dataclasses import asdict, dataclass, field
 from datetime import datetime, timezone
 from typing import Callable
 
+import numpy as np
+
 from taprig import __version__
 from taprig.link import Link, LinkError, LinkEvent, LinkEventKind
-from taprig.protocol import Description, Log, RawBlock, channels_to_mask
-from taprig.reduce import ReducedBlock, ReducedMean, Reducer
+from taprig.protocol import Description, DeviceState, Log, RawBlock, Status, channels_to_mask
+from taprig.reduce import ReducedBlock, ReducedMean, Reducer, ScanFlag
 from taprig.protocol import ActuatorKind
 from taprig.rig import Calibration, Rig, build_calibration, calibration_to_text, wind_off_zero
 from taprig.runtime.hub import Hub
@@ -80,12 +82,13 @@ class Acquisition:
     self-description) are in the record too and a replay can decode from the first byte.
 
     ``on_block(host_ns, reduced)``, if given, sees every reduced block on the reduction thread (the hub only keeps
-    the newest); keep it short.
+    the newest); keep it short. At most ``reduce_backlog`` chunks wait for reduction: if reduction falls further
+    behind, the newest chunks are recorded and kept for points but not reduced for display (``display_skipped``).
     """
 
     def __init__(self, link: Link, rig: Rig, reducer: Reducer, writer: SessionWriter | None = None,
                  hub: Hub | None = None, window_s: float = 30.0,
-                 on_block: Callable[[int, ReducedBlock], None] | None = None):
+                 on_block: Callable[[int, ReducedBlock], None] | None = None, reduce_backlog: int = 32):
         self.link = link
         self.on_block = on_block
         self.rig = rig
@@ -102,9 +105,10 @@ class Acquisition:
         self.display_skipped = 0
         self.link_state = "closed"
         self.last_log = ""
+        self.device_state: DeviceState | None = None  # from the board's latest STATUS
         self._window = _Window(window_s)
         self._window_lock = threading.Lock()
-        self._work: queue.Queue = queue.Queue(maxsize=256)
+        self._work: queue.Queue = queue.Queue(maxsize=reduce_backlog)
         self._stop = threading.Event()
         self._thread = threading.Thread(target=self._run_reduction, name="taprig-reduction", daemon=True)
         self._stream: tuple[float, int] | None = None  # (rate, mask) once streaming
@@ -219,6 +223,25 @@ class Acquisition:
         with self._window_lock:
             return self._window.last(seconds)
 
+    def check_flow(self, seconds: float = 0.5) -> None:
+        """Raise :class:`AcquisitionError` unless most scans of the last ``seconds`` have flow (q above no-flow).
+
+        Says why when it can tell: the board's watchdog tripped (actuators at safe values), or the link is down.
+        """
+        block = self.recent(seconds)
+        if block is None:
+            raise AcquisitionError(f"no data (link {self.link_state})")
+        reduced = self._reduction_for(time.time_ns())[0].reduce(block, alpha_rad=self.alpha_rad)
+        flowing = (reduced.scan_flags & ScanFlag.NO_FLOW) == 0
+        if flowing.mean() > 0.5:
+            return
+        reason = "check the fan, its supply and any interlock"
+        if self.device_state is DeviceState.SAFE:
+            reason = ("the board's watchdog tripped and holds the actuators at their safe values (the host's "
+                      "heartbeat did not reach it in time)")
+        q = float(np.nanmean(reduced.q_pa))
+        raise AcquisitionError(f"no flow (q = {q:.1f} Pa): {reason}")
+
     def capture_point(self, label: str, seconds: float = 2.0) -> ReducedMean:
         """Average the last ``seconds`` into a point with uncertainties, record it and return it."""
         block = self.recent(seconds)
@@ -258,6 +281,12 @@ class Acquisition:
             self.writer.append_chunk(chunk, host_ns)
         if self.link_state in ("connected", "restored") and any(isinstance(i, Description) for i in items):
             self._schedule_resume()  # the board rebooted under a live link (a reset): it is idle and safe now
+        blocks = [item for item in items if isinstance(item, RawBlock)]
+        if blocks:
+            with self._window_lock:
+                for block in blocks:
+                    self._window.add(block)
+            self.scans += sum(b.n_scans for b in blocks)
         try:
             self._work.put_nowait((host_ns, items))
         except queue.Full:
@@ -302,14 +331,13 @@ class Acquisition:
             reducer, alpha = self._reduction_for(host_ns)
             for item in items:
                 if isinstance(item, RawBlock):
-                    with self._window_lock:
-                        self._window.add(item)
-                    self.scans += item.n_scans
                     latest = reducer.reduce(item, alpha_rad=alpha)
                     if self.on_block is not None:
                         self.on_block(host_ns, latest)
                 elif isinstance(item, Log):
                     self.last_log = item.text
+                elif isinstance(item, Status):
+                    self.device_state = DeviceState(item.state)
             if latest is not None:
                 self.hub.publish(self._state(host_ns, latest))
 

@@ -66,6 +66,7 @@ def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1
     for alpha in angles_rad:
         acq.set_actuator(name, float(alpha))
         wait_device_time(acq, settle_s + average_s, timeout_s)
+        acq.check_flow(average_s)  # a sweep of points without flow would be numbers without meaning
         mean = acq.capture_point(f"alpha {math.degrees(alpha):+.1f} deg", average_s)
         point = SweepPoint(float(alpha), mean)
         points.append(point)

@@ -42,16 +42,37 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
+MAX_ANGLES = 1000
+
+
+def _check_numbers(args) -> None:
+    """Every number of a sweep finite and in range, before anything opens or moves."""
+    for flag, value in (("--from-deg", args.start_deg), ("--to-deg", args.stop_deg), ("--step-deg", args.step_deg),
+                        ("--fan", args.fan), ("--settle", args.settle), ("--average", args.average),
+                        ("--spin-up", args.spin_up)):
+        if value is not None and not math.isfinite(value):
+            raise UserError(f"{flag} must be a finite number, got {value}")
+    for flag, value in (("--settle", args.settle), ("--spin-up", args.spin_up)):
+        if value < 0:
+            raise UserError(f"{flag} must be 0 s or more, got {value:g}")
+    if args.average <= 0:
+        raise UserError(f"--average must be more than 0 s, got {args.average:g}")
+    if args.step_deg <= 0:
+        raise UserError(f"--step-deg must be positive, got {args.step_deg:g}")
+
+
 def angles(args, rig) -> list[float]:
-    """The sweep's angles [rad] within the servo's limits."""
+    """The sweep's angles [rad] within the servo's limits (at most ``MAX_ANGLES``)."""
     from taprig.protocol import ActuatorKind
 
+    _check_numbers(args)
     servo = next((a for a in rig.actuators if a.kind is ActuatorKind.ANGLE), None)
     if servo is None:
         raise UserError(f"{args.rig}: a sweep steps the angle of attack, but this rig has no angle actuator")
-    if args.step_deg <= 0:
-        raise UserError(f"--step-deg must be positive, got {args.step_deg:g}")
     stop = math.degrees(servo.max) if args.stop_deg is None else args.stop_deg
+    if (stop - args.start_deg) / args.step_deg > MAX_ANGLES:
+        raise UserError(f"--from-deg {args.start_deg:g} to {stop:g} in steps of {args.step_deg:g}° is more than "
+                        f"{MAX_ANGLES} angles; take a larger --step-deg")
     n = int(math.floor((stop - args.start_deg) / args.step_deg + 1e-9)) + 1
     chosen = [math.radians(args.start_deg + k * args.step_deg) for k in range(max(n, 0))]
     inside = [a for a in chosen if servo.min - 1e-12 <= a <= servo.max + 1e-12]
@@ -88,9 +109,11 @@ def sweep(args, port: str, stem: str | None = None) -> int:
 
     rig = load_rig_arg(args.rig)
     targets = angles(args, rig)  # bad ranges are refused before anything opens or moves
-    fan = next((a.name for a in rig.actuators if a.kind is ActuatorKind.FAN), None)
+    fan = next((a for a in rig.actuators if a.kind is ActuatorKind.FAN), None)
     if fan is None:
         raise UserError(f"{args.rig}: this rig has no fan actuator for the sweep to start")
+    if not fan.min <= args.fan <= fan.max:
+        raise UserError(f"--fan {args.fan:g} is outside the fan's range {fan.min:g} … {fan.max:g} ({fan.unit})")
     acq, out = open_run(args, port, "sessions", stem=stem, rig=rig)
     print(f"{acq.rig.name!r} on {acq.link.port_name} ({acq.description.firmware}, {len(acq.rig.taps)} taps), "
           f"recording to {out}")
@@ -99,8 +122,9 @@ def sweep(args, port: str, stem: str | None = None) -> int:
         if not args.no_zero:
             acq.zero(min(1.0, args.average))
             print("wind-off zero taken")
-        acq.set_actuator(fan, args.fan)
+        acq.set_actuator(fan.name, args.fan)
         wait_device_time(acq, args.spin_up, 30 + args.spin_up)
+        acq.check_flow(min(1.0, args.average))
         print(f"\n{HEADER}")
         points = run_sweep(acq, targets, settle_s=args.settle, average_s=args.average,
                            on_point=lambda p: print(point_line(p), flush=True))
