@@ -23,7 +23,8 @@ from taprig.physics.units import Unit, to_si
 
 @pytest.mark.parametrize(
     ("celsius", "expected"),
-    # REFERENCES.md "Air": CIPM-2007 evaluated by hand (Picard et al. 2008, constants from memory), 50 % RH, 400 ppm
+    # docs/REFERENCES.md "Air": CIPM-2007 evaluated by hand (Picard et al. 2008, constants from memory),
+    # 50 % RH, 400 ppm
     [(15.0, 1.221631), (20.0, 1.199314), (25.0, 1.177315)],
 )
 def test_moist_air_density_matches_cipm_hand_values(celsius, expected):
@@ -36,14 +37,14 @@ def test_moist_air_density_matches_cipm_hand_values(celsius, expected):
 def test_moist_air_density_agrees_with_coolprop_humid_air(celsius, rh):
     t = 273.15 + celsius
     # CoolProp HAPropsSI (Hyland-Wexler / virial humid-air model); Vha is volume per kg of humid air.
-    # REFERENCES.md shows +38 ppm at 20 °C; 1e-4 covers the two formulations over this range.
+    # docs/REFERENCES.md shows +38 ppm at 20 °C; 1e-4 covers the two formulations over this range.
     reference = 1.0 / HAPropsSI("Vha", "T", t, "P", 101325.0, "R", rh)
     assert_allclose(moist_air_density(t, 101325.0, rh), reference, rtol=1e-4)
 
 
 @pytest.mark.parametrize(
     ("celsius", "mmhg", "rh", "expected"),
-    # Gupta, Mass Metrology, appendix (quoted second-hand in REFERENCES.md); 7e-5 gap noted there, tolerance 1e-4
+    # Gupta, Mass Metrology, appendix (quoted second-hand in docs/REFERENCES.md); 7e-5 gap noted there, tolerance 1e-4
     [(10.0, 730.0, 0.4, 1.19569), (40.0, 760.0, 0.4, 1.11497)],
 )
 def test_moist_air_density_published_table(celsius, mmhg, rh, expected):
@@ -59,7 +60,7 @@ def test_saturation_vapour_pressure_agrees_with_iapws95():
 
 
 def test_dry_ideal_density_and_humidity_gap():
-    # REFERENCES.md "Air": ideal gas, R = 287.05 → 1.204118, 0.40 % above the 50 % RH CIPM value
+    # docs/REFERENCES.md "Air": ideal gas, R = 287.05 → 1.204118, 0.40 % above the 50 % RH CIPM value
     dry = dry_air_density_ideal(293.15, 101325.0)
     assert_allclose(dry, 1.204118, rtol=1e-6)
     assert_allclose(dry / moist_air_density(293.15, 101325.0, 0.5) - 1.0, 0.0040, atol=5e-5)
@@ -67,7 +68,7 @@ def test_dry_ideal_density_and_humidity_gap():
 
 @pytest.mark.parametrize(
     ("celsius", "expected"),
-    # REFERENCES.md "Air": Sutherland with μ0 1.716e-5, T0 273.15, S 110.4 (White, from memory)
+    # docs/REFERENCES.md "Air": Sutherland with μ0 1.716e-5, T0 273.15, S 110.4 (White, from memory)
     [(15.0, 1.78930e-5), (25.0, 1.83715e-5)],
 )
 def test_sutherland_viscosity_values(celsius, expected):
@@ -77,7 +78,7 @@ def test_sutherland_viscosity_values(celsius, expected):
 @pytest.mark.parametrize("celsius", [5.0, 15.0, 25.0, 35.0])
 def test_sutherland_viscosity_near_coolprop_air(celsius):
     t = 273.15 + celsius
-    # CoolProp pseudo-pure Air (Lemmon et al. 2004); REFERENCES.md: CoolProp 0.38–0.42 % higher, tolerance 0.5 %
+    # CoolProp pseudo-pure Air (Lemmon et al. 2004); docs/REFERENCES.md: CoolProp 0.38–0.42 % higher, tolerance 0.5 %
     assert_allclose(sutherland_viscosity(t), PropsSI("V", "T", t, "P", 101325.0, "Air"), rtol=5e-3)
 
 
@@ -86,12 +87,12 @@ def test_standard_atmosphere_properties(altitude):
     atm = ATMOSPHERE_1976(altitude)  # fluids' 1976 US standard atmosphere (geometric altitude)
     # dry air: 1976 atmosphere's R = 287.053 vs our 287.05 is 10 ppm, so 2e-5 on density
     assert_allclose(dry_air_density_ideal(atm.T, atm.P), atm.rho, rtol=2e-5)
-    assert_allclose(sutherland_viscosity(atm.T), atm.mu, rtol=5e-5)  # REFERENCES.md: β-form agrees to 5e-5
+    assert_allclose(sutherland_viscosity(atm.T), atm.mu, rtol=5e-5)  # docs/REFERENCES.md: β-form agrees to 5e-5
     assert_allclose(speed_of_sound(atm.T), atm.v_sonic, rtol=1e-5)
 
 
 def test_standard_atmosphere_reference_row():
-    # REFERENCES.md: sea level 1.224999 kg/m³, 1.789380e-5 Pa·s, 340.294 m/s (fluids ATMOSPHERE_1976)
+    # docs/REFERENCES.md: sea level 1.224999 kg/m³, 1.789380e-5 Pa·s, 340.294 m/s (fluids ATMOSPHERE_1976)
     assert_allclose(dry_air_density_ideal(288.15, 101325.0), 1.224999, rtol=2e-5)
     assert_allclose(sutherland_viscosity(288.15), 1.789380e-5, rtol=5e-5)
     assert_allclose(speed_of_sound(288.15), 340.294, rtol=1e-5)
@@ -99,7 +100,7 @@ def test_standard_atmosphere_reference_row():
 
 def test_kinematic_viscosity_and_air_state_are_consistent():
     air = AirState(temperature=293.15, pressure=101325.0, relative_humidity=0.5)
-    assert_allclose(air.density, 1.199314, rtol=1e-6)  # REFERENCES.md CIPM value
+    assert_allclose(air.density, 1.199314, rtol=1e-6)  # docs/REFERENCES.md CIPM value
     assert_allclose(air.kinematic_viscosity, kinematic_viscosity(air.viscosity, air.density), rtol=1e-15)
     assert_allclose(air.speed_of_sound, speed_of_sound(293.15), rtol=1e-15)
 

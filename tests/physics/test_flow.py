@@ -29,7 +29,7 @@ def _impact_pressure(mach, p, gamma=1.4):
 
 @pytest.mark.parametrize(
     ("speed", "expected_mach", "expected_error"),
-    # REFERENCES.md "Pitot-static": +0.097 % at 30 m/s (M 0.088), +0.389 % at 60 m/s (M 0.176), ISA sea level
+    # docs/REFERENCES.md "Pitot-static": +0.097 % at 30 m/s (M 0.088), +0.389 % at 60 m/s (M 0.176), ISA sea level
     [(30.0, 0.088, 0.00097), (60.0, 0.176, 0.00389)],
 )
 def test_incompressible_error_against_isentropic_relation(speed, expected_mach, expected_error):
@@ -38,7 +38,7 @@ def test_incompressible_error_against_isentropic_relation(speed, expected_mach, 
     qc = _impact_pressure(mach, SEA_LEVEL.P)
     error = incompressible_speed(qc, SEA_LEVEL.rho) / speed - 1.0
     assert_allclose(error, expected_error, atol=5e-6)  # the table's printed digits
-    assert_allclose(error, mach**2 / 8.0, rtol=0.01)  # REFERENCES.md: ≈ M²/8 (series expansion)
+    assert_allclose(error, mach**2 / 8.0, rtol=0.01)  # docs/REFERENCES.md: ≈ M²/8 (series expansion)
 
 
 def test_isentropic_speed_recovers_the_speed_at_sea_level():

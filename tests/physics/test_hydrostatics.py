@@ -1,4 +1,4 @@
-"""Manometer columns and gravity against REFERENCES.md and fluids' gravity formula."""
+"""Manometer columns and gravity against docs/REFERENCES.md and fluids' gravity formula."""
 
 import numpy as np
 import pytest
@@ -15,7 +15,7 @@ from taprig.physics.water import water_density
 
 def test_vertical_water_column_reference_rows():
     rho_w = water_density(293.15)
-    # REFERENCES.md "Water and manometers": 50.0 mm, 20 °C water, g = 9.80665 → 489.453 Pa
+    # docs/REFERENCES.md "Water and manometers": 50.0 mm, 20 °C water, g = 9.80665 → 489.453 Pa
     assert_allclose(column_pressure(0.050, rho_w), 489.453, atol=1e-3)
     # same with the air-leg correction ρw − ρair (air 20 °C, 101325 Pa, 50 % RH by CIPM-2007) → 488.865 Pa
     rho_air = moist_air_density(293.15, 101325.0, 0.5)
@@ -25,7 +25,7 @@ def test_vertical_water_column_reference_rows():
 
 
 def test_inclined_tube_reference_row():
-    # REFERENCES.md: 100 mm along a tube at 10°, 20 °C water → 17.365 mm vertical, 169.985 Pa
+    # docs/REFERENCES.md: 100 mm along a tube at 10°, 20 °C water → 17.365 mm vertical, 169.985 Pa
     h = inclined_height(0.100, np.radians(10.0))
     assert_allclose(h, 0.017365, atol=5e-7)
     assert_allclose(column_pressure(h, water_density(293.15)), 169.985, atol=1e-3)

@@ -107,13 +107,16 @@ def test_thin_airfoil_lift_slope(designation):
 
 
 def test_thickness_raises_the_inviscid_slope(foils):
-    # docs/REFERENCES.md: the 11.8 %-thick Joukowski exact slope is 8πR/ℓ = 6.854/rad, above 2π. The panel
-    # method matches it, and a 12 % NACA section lies a little above 2π too (inviscid).
+    # docs/REFERENCES.md: the 11.8 %-thick Joukowski exact slope is 8πR/ℓ = 6.854/rad, 9 % above 2π. The panel
+    # method matches it.
     jouk = _joukowski_model("symmetric", None)
     assert (jouk.cl(0.01) - jouk.cl(-0.01)) / 0.02 == pytest.approx(6.854, rel=0.01)
+    # A 12 %-thick NACA section, inviscid, has nearly the same thickness, so nearly the same slope: within 2 % of
+    # that exact 6.854/rad (docs/REFERENCES.md). The 2 % allows for the other thickness distribution (from memory:
+    # inviscid panel codes give about 6.9/rad for the NACA 0012). A thin-airfoil 2π would miss by 8 %.
     naca = PanelModel(naca4("0012", 201))
     slope = (naca.cl(0.01) - naca.cl(-0.01)) / 0.02
-    assert 1.02 * 2 * np.pi < slope < 1.15 * 2 * np.pi
+    assert slope == pytest.approx(6.854, rel=0.02)
 
 
 def _thin_airfoil_2412():

@@ -40,6 +40,14 @@ def test_naca0012_maximum_thickness_and_trailing_edge():
     assert naca4_thickness(1.0, 0.12, closed_te=True) == pytest.approx(0.0, abs=1e-15)
 
 
+@pytest.mark.parametrize("designation", ["0012", "2412"])
+def test_trailing_edge_gap_is_twice_the_half_thickness(designation):
+    # docs/REFERENCES.md: open-TE half-thickness of a 12 % section 0.00126, so the base is 0.00252 chord; the
+    # thickness is laid off normal to the mean line (NACA Report 460, from memory), so camber leaves the gap alone.
+    assert naca4(designation, closed_te=False).trailing_edge_gap == pytest.approx(0.00252, abs=1e-5)
+    assert naca4(designation, closed_te=True).trailing_edge_gap == pytest.approx(0.0, abs=1e-12)
+
+
 def test_naca2412_camber_line():
     # docs/REFERENCES.md: y_c = 0.015, 0.020, 0.015, 0 at x = 0.2, 0.4, 0.7, 1 (Report 460 mean line).
     yc, slope = naca4_camber(np.array([0.2, 0.4, 0.7, 1.0]), 0.02, 0.4)

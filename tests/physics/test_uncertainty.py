@@ -1,4 +1,4 @@
-"""GUM uncertainty helpers against the uncertainties package, seeded Monte Carlo (JCGM 101) and REFERENCES.md."""
+"""GUM uncertainty helpers against the uncertainties package, seeded Monte Carlo (JCGM 101) and docs/REFERENCES.md."""
 
 import numpy as np
 import pytest
@@ -23,7 +23,7 @@ from taprig.physics.uncertainty import (
     type_b_from_full_scale,
 )
 
-U, Q, P_INF = 2.0, 250.0, 101000.0  # REFERENCES.md "Pitot-static and uncertainty": u = 2 Pa, q = 250 Pa
+U, Q, P_INF = 2.0, 250.0, 101000.0  # docs/REFERENCES.md "Pitot-static and uncertainty": u = 2 Pa, q = 250 Pa
 
 
 def _absolute_channels(cps):
@@ -36,7 +36,7 @@ def _absolute_channels(cps):
 
 @pytest.mark.parametrize(
     ("cp", "expected"),
-    # REFERENCES.md: three uncorrelated absolute channels (JCGM 100:2008 §5.1.2)
+    # docs/REFERENCES.md: three uncorrelated absolute channels (JCGM 100:2008 §5.1.2)
     [(1.0, 0.011314), (0.0, 0.011314), (-1.0, 0.019596), (-3.0, 0.040792)],
 )
 def test_cp_uncertainty_absolute_reference_rows(cp, expected):
@@ -56,7 +56,8 @@ def test_cp_uncertainty_absolute_monte_carlo(cp):
     assert_allclose(cp_uncertainty_absolute(cp, Q, U, U, U), np.std((p - p_inf) / (p_0 - p_inf)), rtol=3e-3)
 
 
-@pytest.mark.parametrize(("cp", "expected"), [(0.0, 0.008000), (-3.0, 0.025298)])  # REFERENCES.md, two differentials
+# docs/REFERENCES.md, two differential transducers
+@pytest.mark.parametrize(("cp", "expected"), [(0.0, 0.008000), (-3.0, 0.025298)])
 def test_cp_uncertainty_differential_reference_rows(cp, expected):
     u = cp_uncertainty_differential(cp, Q, U, U)
     assert_allclose(u, expected, atol=5e-7)

@@ -1,4 +1,4 @@
-"""Venturi stations and ISO 5167-4 mass flow against REFERENCES.md and fluids.flow_meter."""
+"""Venturi stations and ISO 5167-4 mass flow against docs/REFERENCES.md and fluids.flow_meter."""
 
 import numpy as np
 import pytest
@@ -19,7 +19,8 @@ from taprig.physics.venturi import (
     venturi_mass_flow,
 )
 
-# REFERENCES.md "Venturi": D = 50 mm, d = 25 mm, air at 20 °C (ρ1 = 1.204575, κ = 1.4), p1 = 101325 Pa, Δp = 500 Pa
+# docs/REFERENCES.md "Venturi": D = 50 mm, d = 25 mm, air at 20 °C (ρ1 = 1.204575, κ = 1.4), p1 = 101325 Pa,
+# Δp = 500 Pa
 D, DT, RHO1, KAPPA, P1, DP = 0.050, 0.025, 1.204575, 1.4, 101325.0, 500.0
 MU_AIR = 1.8e-5  # only used by fluids to compute Re (C is fixed for this meter type); common practice value
 
@@ -29,7 +30,7 @@ def _area(d):
 
 
 def test_throat_cp_for_area_ratio_four():
-    # REFERENCES.md: throat of D/d = 2 referred to the pipe: Cp = 1 − 4² = −15 (Bernoulli)
+    # docs/REFERENCES.md: throat of D/d = 2 referred to the pipe: Cp = 1 − 4² = −15 (Bernoulli)
     assert_allclose(ideal_station_cp(_area(DT), _area(D)), -15.0, rtol=1e-14)
     assert_allclose(ideal_station_cp(_area(D), _area(D)), 0.0, atol=1e-15)
 
@@ -51,12 +52,12 @@ def test_stations_conserve_mass_and_total_pressure(v_ref, rho, areas):
 def test_beta_and_velocity_of_approach():
     beta = beta_ratio(DT, D)
     assert_allclose(beta, 0.5, rtol=1e-15)
-    # REFERENCES.md: E = 1.032796 = 1/√(1 − β⁴) (ISO 5167-1 §3.3.6)
+    # docs/REFERENCES.md: E = 1.032796 = 1/√(1 − β⁴) (ISO 5167-1 §3.3.6)
     assert_allclose(velocity_of_approach_factor(beta), 1.032796, atol=5e-7)
 
 
 def test_expansibility_matches_reference_and_fluids():
-    # REFERENCES.md: ε = 0.9971189; fluids.flow_meter.nozzle_expansibility implements the same ISO 5167-4 formula
+    # docs/REFERENCES.md: ε = 0.9971189; fluids.flow_meter.nozzle_expansibility implements the same ISO 5167-4 formula
     eps = venturi_expansibility(0.5, P1, DP, KAPPA)
     assert_allclose(eps, 0.9971189, atol=5e-8)
     assert_allclose(eps, nozzle_expansibility(D, DT, P1, P1 - DP, KAPPA), rtol=1e-13)
@@ -86,7 +87,7 @@ def test_expansibility_falls_with_differential(beta, dp, step):
 def test_mass_flow_matches_reference_and_fluids():
     eps = venturi_expansibility(beta_ratio(DT, D), P1, DP, KAPPA)
     qm = venturi_mass_flow(DT, D, DP, RHO1, ISO5167_MACHINED_VENTURI_C, eps)
-    # REFERENCES.md: 1.7457066e-2 kg/s (fluids differential_pressure_meter_solver; by hand identical to 4e-14)
+    # docs/REFERENCES.md: 1.7457066e-2 kg/s (fluids differential_pressure_meter_solver; by hand identical to 4e-14)
     assert_allclose(qm, 1.7457066e-2, rtol=1e-7)
     solved = differential_pressure_meter_solver(
         D=D, rho=RHO1, mu=MU_AIR, k=KAPPA, D2=DT, P1=P1, P2=P1 - DP,
@@ -96,7 +97,7 @@ def test_mass_flow_matches_reference_and_fluids():
 
 
 def test_mass_flow_without_expansibility():
-    # REFERENCES.md: with ε = 1, 1.750751e-2 kg/s; fluids.flow_meter_discharge with C = 0.995, ε = 1
+    # docs/REFERENCES.md: with ε = 1, 1.750751e-2 kg/s; fluids.flow_meter_discharge with C = 0.995, ε = 1
     qm = venturi_mass_flow(DT, D, DP, RHO1)
     assert_allclose(qm, 1.750751e-2, rtol=3e-7)
     assert_allclose(qm, flow_meter_discharge(D, DT, P1, P1 - DP, RHO1, 0.995, 1.0), rtol=1e-12)

@@ -1,4 +1,4 @@
-"""2-D wall corrections against the worked example in REFERENCES.md.
+"""2-D wall corrections against the worked example in docs/REFERENCES.md.
 
 The formulas and the example were recalled from memory of Barlow, Rae & Pope (3rd ed., ch. 9) / Allen & Vincenti
 (NACA TR 782), not read from the book: these tests check that the code implements exactly those formulas; verify
@@ -19,7 +19,7 @@ from taprig.physics.walls import (
     wake_blockage,
 )
 
-# REFERENCES.md worked example: c = 0.10 m, h = b = 0.30 m, 12 % NACA section area 8.221e-4 m²,
+# docs/REFERENCES.md worked example: c = 0.10 m, h = b = 0.30 m, 12 % NACA section area 8.221e-4 m²,
 # Cl_u = 0.8, α_u = 6°, Cm_u = −0.05, Cd_u = 0.02, K1 = 0.74 (from memory)
 CHORD, HEIGHT, WIDTH, AREA = 0.10, 0.30, 0.30, 8.221e-4
 
@@ -30,7 +30,7 @@ def _example():
 
 def test_worked_example_factors():
     r = _example()
-    # REFERENCES.md: σ = 0.022846, ε_wb = 0.003333, ε_sb = 0.006759, ε = 0.010093 (printed to 6 decimals)
+    # docs/REFERENCES.md: σ = 0.022846, ε_wb = 0.003333, ε_sb = 0.006759, ε = 0.010093 (printed to 6 decimals)
     assert_allclose(r.sigma, 0.022846, atol=5e-7)
     assert_allclose(r.wake_blockage, 0.003333, atol=5e-7)
     assert_allclose(r.solid_blockage, 0.006759, atol=5e-7)
@@ -39,7 +39,7 @@ def test_worked_example_factors():
 
 def test_worked_example_corrected_coefficients():
     r = _example()
-    # REFERENCES.md: Cl = 0.76557, α = 6.1250°, Cm = −0.04462, Cd = 0.019461, q/q_u = 1.02019
+    # docs/REFERENCES.md: Cl = 0.76557, α = 6.1250°, Cm = −0.04462, Cd = 0.019461, q/q_u = 1.02019
     assert_allclose(r.cl, 0.76557, atol=5e-6)
     assert_allclose(np.degrees(r.alpha), 6.1250, atol=5e-5)  # the book's 57.3 vs 180/π differs by 3e-5 °
     assert_allclose(r.cm_quarter_chord, -0.04462, atol=5e-6)
@@ -48,12 +48,12 @@ def test_worked_example_corrected_coefficients():
 
 
 def test_factor_functions_match_their_formulas():
-    # formulas of REFERENCES.md written out independently
+    # formulas of docs/REFERENCES.md written out independently
     assert_allclose(streamline_curvature_parameter(CHORD, HEIGHT), np.pi**2 / 48 * (CHORD / HEIGHT) ** 2)
     assert_allclose(wake_blockage(CHORD, HEIGHT, 0.02), CHORD / (2 * HEIGHT) * 0.02)
     volume, tunnel = AREA * WIDTH, HEIGHT * WIDTH
     assert_allclose(solid_blockage(volume, tunnel), 0.74 * volume / tunnel**1.5)
-    # K1 = 0.52 for a model spanning the height (REFERENCES.md, from memory)
+    # K1 = 0.52 for a model spanning the height (docs/REFERENCES.md, from memory)
     assert_allclose(solid_blockage(volume, tunnel, SpanOrientation.SPANS_HEIGHT), 0.52 * volume / tunnel**1.5)
 
 

@@ -12,7 +12,7 @@ from taprig.physics.water import water_density, water_viscosity
 
 @pytest.mark.parametrize(
     ("celsius", "expected"),
-    # REFERENCES.md "Water and manometers": CoolProp PropsSI('D', ..., 101325, 'Water') = IAPWS-95
+    # docs/REFERENCES.md "Water and manometers": CoolProp PropsSI('D', ..., 101325, 'Water') = IAPWS-95
     [(4.0, 999.9749), (20.0, 998.2072), (25.0, 997.0476)],
 )
 def test_density_reference_rows(celsius, expected):

@@ -9,7 +9,7 @@ import pytest
 
 from taprig.physics.integration import section_coefficients
 from taprig.protocol import RawBlock
-from taprig.reduce import ChannelFlag, ReduceError, Reducer, ScanFlag
+from taprig.reduce import ChannelFlag, ReduceError, Reducer, ScanFlag, flag_names
 from taprig.rig import load_rig, parse_rig
 
 # A tiny rig with known numbers: one ratiometric pitot differential and three room-referenced taps.
@@ -129,6 +129,21 @@ def test_saturated_tap_is_flagged_and_left_out(tiny):
     assert rb.channel_flags[1, col] & ChannelFlag.SATURATED and not rb.channel_flags[0].any()
     assert rb.scan_flags[1] & ScanFlag.SATURATED and rb.scan_flags[1] & ScanFlag.NO_INTEGRAL
     assert np.isnan(rb.cp[1, rb.tap_names.index("U1")]) and np.isfinite(rb.cl[0])
+
+
+def test_flag_counts_summarise_the_block(tiny):
+    # By construction: scans 1 and 2 have tap U1 at the 12-bit rail, scan 3 has q = 0, scan 0 is clean.
+    good = [2211.84, 1851.392, 2129.92, 2048.0]
+    rails = [2211.84, 4095.0, 2129.92, 2048.0]
+    still = [2048.0, 1900.0, 2000.0, 2048.0]
+    rb = tiny.reduce(_block([good, rails, rails, still]))
+    by_scan = rb.flag_counts()
+    assert by_scan["SATURATED"] == 2 and by_scan["NO_INTEGRAL"] == 2 and by_scan["NO_FLOW"] == 1
+    assert set(by_scan) == {name for mask in rb.scan_flags[1:] for name in flag_names(mask, ScanFlag)}
+    by_channel = rb.channel_flag_counts()
+    assert list(by_channel) == ["U1"]  # channels without a flagged sample are left out
+    assert by_channel["U1"]["SATURATED"] == 2
+    assert tiny.reduce(_block([good])).flag_counts() == {}
 
 
 def test_degraded_integral_over_the_remaining_taps(make_block):

@@ -31,7 +31,7 @@ from taprig.rig import (
 DATE = datetime(2024, 5, 1, 10, 30, tzinfo=timezone.utc)
 PCT_FOR_2PA = 100.0 * 2.0 * math.sqrt(3.0) / 200000.0  # u = 2 Pa over a 200 kPa span, rectangular (GUM 4.3.7)
 TAPS = [("T1", 0.3, "upper"), ("T2", 0.1, "upper"), ("T3", 0.1, "lower"), ("T4", 0.3, "lower")]
-CPS = {"T1": 1.0, "T2": 0.0, "T3": -1.0, "T4": -3.0}  # REFERENCES.md's Cp values
+CPS = {"T1": 1.0, "T2": 0.0, "T3": -1.0, "T4": -3.0}  # docs/REFERENCES.md's Cp values
 LSB = 1e-4 / math.sqrt(12.0)  # one count of the fine sensor, u = LSB/√12 (GUM F.2.2.1) [Pa]
 G0 = 9.80665
 G_EQUATOR, G_POLE = 9.7803253359, 9.8321849378  # WGS-84 normal gravity, equator and poles (from memory)
@@ -57,14 +57,15 @@ def _u_by_tap(mean):
 
 
 def test_zeroing_removes_exactly_the_offset_part(make_block, airfoil_rig):
-    # Band ±2√3 Pa (u = 2 Pa: REFERENCES.md's differential case), of which 80 % in quadrature is offset:
+    # Band ±2√3 Pa (u = 2 Pa: docs/REFERENCES.md's differential case), of which 80 % in quadrature is offset:
     # u_offset = 1.6 Pa, u_rest = 1.2 Pa. Differential layout: u(Cp) = √(u_tap² + Cp² u_q²)/q (GUM §5.1.2).
     rig = _rig(airfoil_rig, TAPS, PCT_FOR_2PA, offset=0.8 * PCT_FOR_2PA)
     nominal, q = Reducer(rig), 250.0
     names = [c.name for c in rig.channels]
     block = make_block(nominal, np.tile(_row(q), (20, 1)))
     u_nominal = _u_by_tap(nominal.reduce_mean(block))
-    # REFERENCES.md: (u/q)√(1 + Cp²), u = 2 Pa, q = 250 Pa → 0.008000 at Cp 0, 0.025298 at Cp −3 (plus one count)
+    # docs/REFERENCES.md: (u/q)√(1 + Cp²), u = 2 Pa, q = 250 Pa → 0.008000 at Cp 0, 0.025298 at Cp −3
+    # (plus one count)
     assert u_nominal["T2"] == pytest.approx(0.008000, abs=2e-6) and u_nominal["T4"] == pytest.approx(0.025298, abs=2e-6)
 
     quiet_zero = make_block(nominal, np.zeros((50, 5))).counts  # a noiseless zero: standard error 0

@@ -20,7 +20,7 @@ from taprig.rig import parse_rig
 # u = 2 Pa per channel as a rectangular ±a bound over a 200 kPa span: a = √3·2 Pa → % FS (GUM 4.3.7).
 PCT_FOR_2PA = 100.0 * 2.0 * math.sqrt(3.0) / 200000.0
 TAPS = [("T1", 0.3, "upper"), ("T2", 0.1, "upper"), ("T3", 0.1, "lower"), ("T4", 0.3, "lower")]
-CPS = np.array([1.0, 0.0, -1.0, -3.0])  # REFERENCES.md's Cp values, one per tap
+CPS = np.array([1.0, 0.0, -1.0, -3.0])  # docs/REFERENCES.md's Cp values, one per tap
 
 
 def _constant_block(make_block, reducer, p_row, n=20):
@@ -28,8 +28,8 @@ def _constant_block(make_block, reducer, p_row, n=20):
 
 
 def test_u_cp_three_absolute_channels_matches_gum_values(make_block, airfoil_rig):
-    # REFERENCES.md: (u/q)√(1 + (1 − Cp)² + Cp²) with u = 2 Pa, q = 250 Pa → 0.011314, 0.011314, 0.019596, 0.040792
-    # (JCGM 100:2008 §5.1.2).
+    # docs/REFERENCES.md: (u/q)√(1 + (1 − Cp)² + Cp²) with u = 2 Pa, q = 250 Pa → 0.011314, 0.011314, 0.019596,
+    # 0.040792 (JCGM 100:2008 §5.1.2).
     reducer = Reducer(parse_rig(airfoil_rig(TAPS, pct=PCT_FOR_2PA), "abs.toml"))
     ps, q = 100000.0, 250.0
     by_name = dict(zip([t[0] for t in TAPS], ps + CPS * q))
@@ -50,7 +50,7 @@ def test_u_cp_three_absolute_channels_matches_gum_values(make_block, airfoil_rig
 
 
 def test_u_cp_two_differential_channels_matches_gum_values(make_block, airfoil_rig):
-    # REFERENCES.md: (u/q)√(1 + Cp²): Cp = 0 → 0.008000; −3 → 0.025298 (JCGM 100:2008 §5.1.2).
+    # docs/REFERENCES.md: (u/q)√(1 + Cp²): Cp = 0 → 0.008000; −3 → 0.025298 (JCGM 100:2008 §5.1.2).
     reducer = Reducer(parse_rig(airfoil_rig(TAPS, layout="differential", pct=PCT_FOR_2PA), "diff.toml"))
     q = 250.0
     by_name = dict(zip([t[0] for t in TAPS], CPS * q))
@@ -96,8 +96,8 @@ CASES = {"symmetric 5°": (-0.1 + 0j, 5.0, 0.5973989261), "cambered 5°": (-0.1 
 
 @pytest.mark.parametrize("case", CASES)
 def test_shape_integrator_recovers_exact_joukowski_cl(case, make_block, airfoil_rig, capsys):
-    # Exact Cl = 8π(R/ℓ) sin(α + β) of the Joukowski airfoil (REFERENCES.md); targets of issue 4: within 1 % with
-    # 20 taps uniform in x, 0.5 % with 20 clustered taps, 3 % with 7 taps.
+    # Exact Cl = 8π(R/ℓ) sin(α + β) of the Joukowski airfoil (docs/REFERENCES.md); targets of issue 4: within 1 %
+    # with 20 taps uniform in x, 0.5 % with 20 clustered taps, 3 % with 7 taps.
     centre, alpha_deg, exact = CASES[case]
     foil = JoukowskiSection(centre)
     alpha = math.radians(alpha_deg)
@@ -119,7 +119,7 @@ def test_shape_integrator_recovers_exact_joukowski_cl(case, make_block, airfoil_
 
 
 def test_wall_corrections_match_the_worked_example(airfoil_rig):
-    # REFERENCES.md worked example (Barlow, Rae & Pope, 3rd ed., ch. 9, from memory): c = 0.10 m, h = b = 0.30 m,
+    # docs/REFERENCES.md worked example (Barlow, Rae & Pope, 3rd ed., ch. 9, from memory): c = 0.10 m, h = b = 0.30 m,
     # 12 % section, Cl_u 0.8, α_u 6°, Cm_u −0.05, Cd_u 0.02, K1 = 0.74 → Cl 0.76557, α 6.1250°, Cm −0.04462,
     # Cd 0.019461, q/q_u 1.02019. The example takes the area as 0.685 c t = 8.221e-4 m²; the reducer uses the NACA
     # 0012 contour's own area, 0.6809 c t = 8.170e-4 m² (∫2y_t dx of the closed-TE thickness formula), which
@@ -191,8 +191,8 @@ area_mm2 = 981.747704
 
 
 def test_venturi_station_cp_follows_bernoulli(make_block):
-    # Continuity + Bernoulli (REFERENCES.md): Cp = 1 − (A_ref/A)²; D/d = 2 throat → −15. Water (ε = 1) and C = 1,
-    # so the ISO 5167-4 flow of the inlet − throat differential is the ideal one: q_m = ρ A1 √(2 q1/ρ).
+    # Continuity + Bernoulli (docs/REFERENCES.md): Cp = 1 − (A_ref/A)²; D/d = 2 throat → −15. Water (ε = 1) and
+    # C = 1, so the ISO 5167-4 flow of the inlet − throat differential is the ideal one: q_m = ρ A1 √(2 q1/ρ).
     reducer = Reducer(parse_rig(VENTURI, "venturi.toml"), options=ReduceOptions(discharge_coefficient=1.0))
     q1 = 40.0
     ideal = np.array([0.0, 1.0 - 4.0, 1.0 - 16.0])  # S1, S3 (half area), S2 (quarter area) in station order
@@ -213,6 +213,6 @@ def test_mean_of_a_no_flow_block(make_block, airfoil_rig):
 
 
 def test_ambient_water_properties_follow_physics():
-    # Tanaka et al. (2001) water density at 20 °C: 998.207 kg/m³ (REFERENCES.md, CoolProp 998.2072).
+    # Tanaka et al. (2001) water density at 20 °C: 998.207 kg/m³ (docs/REFERENCES.md, CoolProp 998.2072).
     props = Ambient(temperature=293.15).properties("water")
     assert props.density == pytest.approx(998.2072, abs=2e-3) and math.isnan(props.speed_of_sound)

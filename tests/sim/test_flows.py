@@ -34,7 +34,7 @@ def _steady(h, fan: float = 1.0, angle_deg: float | None = None, rate: float = 2
 
 def _air_density(temperature_c: float, pressure: float, humidity: float) -> float:
     # CoolProp's humid-air model, an independent reference for the CIPM-2007 density the board uses
-    # (../shared/REFERENCES.md: they agree within 40 ppm).
+    # (docs/REFERENCES.md: they agree within 40 ppm).
     return 1.0 / HAPropsSI("Vha", "T", temperature_c + 273.15, "P", pressure, "R", humidity)
 
 
@@ -47,7 +47,7 @@ def test_venturi_stations_follow_bernoulli_upstream_and_recover_partly(host, rig
     opts = h.device.options
     q = 0.5 * _air_density(opts.ambient_c, opts.ambient_pa, opts.humidity) * speed**2
     cp = (p - p[0]) / q
-    ideal = 1.0 - (layout.area[0] / layout.area) ** 2  # continuity + Bernoulli (REFERENCES.md, venturi)
+    ideal = 1.0 - (layout.area[0] / layout.area) ** 2  # continuity + Bernoulli (docs/REFERENCES.md, venturi)
     throat = int(np.argmin(layout.area))
     lsb = 4000.0 / (0.8 * 16383)  # 14-bit bridge, 10-90 % of ±2000 Pa: one count [Pa]
     np.testing.assert_allclose(cp[: throat + 1], ideal[: throat + 1], rtol=2e-4, atol=2 * lsb / q)
@@ -67,7 +67,7 @@ def test_cylinder_taps_follow_potential_flow(host, rigs):
     q = values[rig.reference.pitot].mean() * rig.reference.pitot_coefficient
     assert all(rig.channel(int(c)).relative_to == "static" for c in layout.channels)  # taps read p - p∞
     cp = np.array([values[rig.channel(int(c)).name].mean() / q for c in layout.channels])
-    # circular cylinder in potential flow, Cp = 1 - 4 sin²θ (REFERENCES.md, potential-flow theory)
+    # circular cylinder in potential flow, Cp = 1 - 4 sin²θ (docs/REFERENCES.md, potential-flow theory)
     np.testing.assert_allclose(cp, 1.0 - 4.0 * np.sin(layout.theta) ** 2, atol=3e-3)
 
 

@@ -161,6 +161,27 @@ def test_url_helpers_round_trip():
     assert parse_sim_url("sim:///abs/path/rig.toml").rig_path == "/abs/path/rig.toml"
 
 
+@pytest.mark.parametrize("folder", ["lab#2", "which?", "50%", "my rigs", "%23 a?b#c"])
+def test_rig_paths_with_url_characters_survive_the_url(tmp_path, monkeypatch, folder):
+    # '#' would start a fragment, '?' the query, '%' an escape and a space is not allowed in a URL (RFC 3986 §2):
+    # the path is quoted on the way in and unquoted by the parser, so the loader gets the very file name.
+    (tmp_path / folder).mkdir()
+    rig = tmp_path / folder / "rig.toml"
+    rig.write_bytes((RIGS / "cylinder.toml").read_bytes())
+    monkeypatch.chdir(tmp_path)
+    for path in (f"{folder}/rig.toml", rig.as_posix()):
+        url = with_rig("sim://?seed=3", path)
+        target = parse_sim_url(url)
+        assert target.rig_path == path and target.options.seed == 3
+        port = serial.serial_for_url(url, timeout=0.5)
+        try:
+            h = PortHost(port)
+            h.send(Describe(1))
+            h.read_until(lambda items: any(isinstance(i, Description) for i in items))
+        finally:
+            port.close()
+
+
 def test_every_option_is_documented():
     from dataclasses import fields
 

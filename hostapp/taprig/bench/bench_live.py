@@ -142,6 +142,7 @@ def _memory_flat(quick: bool) -> list[Record]:
     from taprig.runtime.acquisition import Acquisition, session_meta
     from taprig.runtime.sweep import wait_device_time
     from taprig.session.store import SessionWriter
+    from taprig.sim import sim_url
 
     minutes = 5 if quick else 60
     rig = load_rig(RIG)
@@ -149,8 +150,8 @@ def _memory_flat(quick: bool) -> list[Record]:
     samples = []
     with tempfile.TemporaryDirectory() as tmp:
         writer = SessionWriter(Path(tmp) / "hour.taprig", session_meta(rig, "sim", reducer.ambient))
-        acq = Acquisition(Link(f"sim://{RIG}?seed=9&speed=max&watchdog_ms=0", heartbeat=False), rig, reducer,
-                          writer)
+        url = sim_url(RIG.as_posix(), "seed=9&speed=max&watchdog_ms=0")
+        acq = Acquisition(Link(url, heartbeat=False), rig, reducer, writer)
         t0 = time.perf_counter()
         acq.open(RATE_HZ)
         acq.set_actuator("fan", 0.6)

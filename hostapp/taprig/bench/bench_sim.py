@@ -23,7 +23,7 @@ import taprig.link  # noqa: F401  (registers sim://)
 from taprig.bench import Record
 from taprig.protocol import Heartbeat, Samples, SetActuator, Start, StreamDecoder, encode_message
 from taprig.rig.loader import load_rig
-from taprig.sim import SimOptions
+from taprig.sim import SimOptions, sim_url
 from taprig.sim.board import build_description, build_sensor_bank, tubing_time_constants
 from taprig.sim.plant import build_plant, channel_values
 from taprig.sim.sensors import digitise, first_order_lag, lag_coefficients, sensor_reading
@@ -34,7 +34,7 @@ ALL_CHANNELS = (1 << 64) - 1
 
 
 def _open(query: str):
-    port = serial.serial_for_url(f"sim://{RIG.as_posix()}?seed=1&{query}", timeout=0.05)
+    port = serial.serial_for_url(sim_url(RIG.as_posix(), f"seed=1&{query}"), timeout=0.05)
     port.write(encode_message(SetActuator(1, 0, 0.7), 0) + encode_message(SetActuator(2, 1, 6.0), 1))
     port.write(encode_message(Start(3, RATE_HZ, ALL_CHANNELS, 0), 2))
     return port

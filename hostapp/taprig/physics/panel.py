@@ -189,11 +189,6 @@ class PanelModel:
         cn, ca, cm = np.moveaxis(basis @ self._integrals.T, -1, 0)
         return cn, ca, cm, a
 
-    def normal_axial(self, alpha_rad: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
-        r"""Body-axis force coefficients :math:`C_n = \oint C_p\,dx`, :math:`C_a = -\oint C_p\,dy` [-] at α [rad]."""
-        cn, ca, _, _ = self._integrated(alpha_rad)
-        return cn, ca
-
     def cl(self, alpha_rad: ArrayLike) -> np.ndarray:
         r"""Lift coefficient from the pressure integral, :math:`C_l = C_n\cos\alpha - C_a\sin\alpha` [-]."""
         cn, ca, _, a = self._integrated(alpha_rad)

@@ -6,7 +6,7 @@ Allen & Vincenti as collected by Barlow, Rae & Pope; they are good while the blo
 per cent, which is the case for chord/height up to about 0.4.
 
 The formulas below were recalled from memory of Barlow, Rae & Pope (3rd ed., ch. 9) and are implemented exactly
-as recorded in the project's REFERENCES.md; check them against the book before relying on them as an oracle.
+as recorded in docs/REFERENCES.md; check them against the book before relying on them as an oracle.
 """
 
 from __future__ import annotations
@@ -199,7 +199,7 @@ def correct_2d(
     Notes
     -----
     The book writes the angle correction with 57.3σ/2π in degrees; in radians the factor is σ/2π. Cm uses the
-    corrected Cl, as in the worked example of REFERENCES.md. First-order theory: keep c/h below ~0.4.
+    corrected Cl, as in the worked example of docs/REFERENCES.md. First-order theory: keep c/h below ~0.4.
 
     Examples
     --------

@@ -399,12 +399,7 @@ BODY_DECODERS: dict[int, Callable[[bytes], object]] = {
     MsgType.DESCRIBE: _req_only(Describe),
     MsgType.RESET: _req_only(Reset),
 }
-"""Body parsers for every known type except SAMPLES; each raises :class:`MalformedBody` on a short or bad body."""
+"""Body parsers for every known type except SAMPLES; each raises :class:`MalformedBody` on a short or bad body.
 
-
-def decode_body(msg_type: int, body: bytes) -> object:
-    """Return the message dataclass of a non-``SAMPLES`` body; raises :class:`MalformedBody` or ``KeyError``.
-
-    Bytes past the fields of version 1.0 are ignored (PROTOCOL.md §2).
-    """
-    return BODY_DECODERS[msg_type](body)
+Bytes past the fields of version 1.0 are ignored (PROTOCOL.md §2).
+"""

@@ -18,6 +18,7 @@ from taprig.sim.options import (
     SimOptions,
     SimTarget,
     parse_sim_url,
+    sim_url,
     to_query,
     with_rig,
 )
@@ -43,6 +44,7 @@ __all__ = [
     "SimTarget",
     "SimulatedDevice",
     "parse_sim_url",
+    "sim_url",
     "to_query",
     "with_rig",
 ]

@@ -4,7 +4,7 @@ Below the critical angle the taps see the panel method's inviscid Cp (:class:`ta
 optionally at a slightly reduced angle: a boundary layer thickens toward the trailing edge and lowers the lift
 slope of a real section below its inviscid value ("viscous decambering"; the measured NACA 0012 slope is about
 0.88 of the inviscid one of a 12 %-thick section, Abbott & von Doenhoff 1959 App. IV and the exact Joukowski
-slope of ../shared/REFERENCES.md, from memory).
+slope of docs/REFERENCES.md, from memory).
 
 Above the critical angle (measured from the zero-lift angle) a stall model takes over, after the picture of
 trailing-edge stall used by the trade:

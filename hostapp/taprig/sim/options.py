@@ -12,10 +12,13 @@ options as ``--flags`` (``burst_rate`` → ``--burst-rate``). Units are SI excep
 from __future__ import annotations
 
 from dataclasses import dataclass, field, fields, replace
-from urllib.parse import parse_qsl, unquote, urlsplit
+from urllib.parse import parse_qsl, quote, unquote, urlsplit
 
 #: Environment variable naming the rig of a bare ``sim://`` URL (set by a command's ``--rig``, or by the user).
 RIG_ENVIRONMENT_VARIABLE = "TAPRIG_SIM_RIG"
+
+# Characters of a rig path left as they are in a sim:// URL: directory separators and a Windows drive colon.
+_PATH_SAFE = "/:\\"
 
 
 def _speed(text: str) -> float:
@@ -163,17 +166,26 @@ def parse_sim_url(url: str, default_rig: str | None = None) -> SimTarget:
     return SimTarget(path, SimOptions.from_pairs(pairs, url))
 
 
+def sim_url(rig_path: str, query: str = "") -> str:
+    """The ``sim://`` URL of a rig file with an optional query (``name=value&…``); inverse of ``parse_sim_url``.
+
+    The path is percent-quoted, keeping only ``/``, ``:`` and ``\\`` as they are, so a ``#``, ``?``, ``%`` or
+    space in a file name reaches the rig loader unchanged instead of starting a fragment or the query.
+    """
+    path = quote(str(rig_path), safe=_PATH_SAFE)
+    return f"sim://{path}?{query}" if query else f"sim://{path}"
+
+
 def with_rig(url: str, rig_path: str) -> str:
     """Return ``url`` with ``rig_path`` filled in when it is a bare ``sim://`` (other URLs come back unchanged).
 
     This is how a command with ``--rig RIG`` opens ``sim://?seed=3``: it passes ``with_rig(url, RIG)`` to
-    ``serial.serial_for_url``.
+    ``serial.serial_for_url``. The path is quoted as by :func:`sim_url`.
     """
     parts = urlsplit(url)
     if parts.scheme.lower() != "sim" or parts.netloc or parts.path:
         return url
-    query = f"?{parts.query}" if parts.query else ""
-    return f"sim://{rig_path}{query}"
+    return sim_url(rig_path, parts.query)
 
 
 def to_query(options: SimOptions) -> str:
