@@ -133,3 +133,40 @@ def test_port_handshake_timeout_is_one_line_and_exit_1(capsys):
         device.stop()
         pty.close()
     assert code == 1 and err.count("\n") == 1 and "no DESCRIPTION" in err
+
+
+def test_a_session_file_is_refused_with_the_commands_that_read_it(capsys, tmp_path):
+    from taprig.session.store import SessionWriter
+
+    path = tmp_path / "run.taprig"
+    writer = SessionWriter(path, {"rig_id": "x"})
+    writer.append_chunk(bytes.fromhex(CASES["samples_mixed"]["hex"]), 1)
+    writer.close()
+    code, lines, err = decode(capsys, path)
+    assert code == 1 and lines == [] and err.count("\n") == 1
+    assert f"{path} is a taprig session file: use taprig info / taprig replay" in err
+
+
+def test_another_sqlite_database_is_refused_as_no_capture(capsys, tmp_path):
+    import sqlite3
+
+    path = tmp_path / "other.db"
+    with sqlite3.connect(path) as con:
+        con.execute("CREATE TABLE t (x)")
+    con.close()
+    code, _, err = decode(capsys, path)
+    assert code == 1 and "is an SQLite database, not a capture file" in err and "session" not in err
+
+
+def test_a_rig_file_decodes_to_no_frames_and_says_so(capsys):
+    rig = Path(__file__).resolve().parents[2] / "rigs" / "naca0012-20tap.toml"
+    code, lines, err = decode(capsys, rig)
+    assert code == 0 and lines[-1]["counters"]["frames"] == 0  # the counters line is still printed
+    (warning,) = err.strip().splitlines()
+    assert warning.startswith(f"taprig decode: warning: {rig}: no good frames") and "rig or calibration" in warning
+
+
+def test_a_file_with_frames_prints_no_warning(capsys, tmp_path):
+    (tmp_path / "capture.bin").write_bytes(bytes.fromhex(CASES["samples_mixed"]["hex"]))
+    code, lines, err = decode(capsys, tmp_path / "capture.bin")
+    assert code == 0 and lines[-1]["counters"]["frames"] > 0 and err == ""

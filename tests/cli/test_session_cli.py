@@ -118,7 +118,9 @@ def test_replay_with_another_calibration(tmp_path, capsys, sessions):
     assert code == 0 and f"reduced with {cal}" in out
     _, nominal, _ = run_cli(capsys, "replay", sessions[0], "--fast")
     # every gain × 1.5 with the nominal zero: q = K (p0 − p∞) scales by 1.5 (linear in the readings)
-    for q_cal, q_nominal in zip(q_of_lines(out)[1:], q_of_lines(nominal)[1:]):
+    q_cal_lines, q_nominal_lines = q_of_lines(out)[1:], q_of_lines(nominal)[1:]
+    assert len(q_cal_lines) == len(q_nominal_lines) >= 2, (out, nominal)  # seconds 1 and 2 of the 2 s session
+    for q_cal, q_nominal in zip(q_cal_lines, q_nominal_lines):
         assert q_cal == pytest.approx(1.5 * q_nominal, abs=0.2)
 
 
@@ -196,3 +198,62 @@ def test_bad_session_files_are_one_line_errors(tmp_path, capsys, sessions, comma
                 "truncated": "session", "newer": "newer"}[kind]
     assert_one_line_error(code, err, str(path), expected)
     assert not (tmp_path / "OUT.csv").exists()
+
+
+@pytest.mark.parametrize("command", [["info"], ["replay", "--fast"], ["export", "--format", "csv", "-o", "OUT.csv"]])
+def test_a_directory_given_as_the_session_says_so(tmp_path, capsys, command):
+    argv = [command[0], tmp_path] + [str(tmp_path / a) if a == "OUT.csv" else a for a in command[1:]]
+    assert_one_line_error(*run_cli(capsys, *argv)[::2], str(tmp_path), "is a directory")
+
+
+@pytest.mark.parametrize("target", ["{s}", "{s}-wal", "{s}-shm", "{d}/../{d_name}/{s_name}", "link.taprig"])
+def test_export_never_writes_over_the_session_it_reads(tmp_path, capsys, sessions, target):
+    session = tmp_path / "run.taprig"
+    session.write_bytes(sessions[0].read_bytes())
+    (tmp_path / "link.taprig").symlink_to(session)
+    before = session.read_bytes()
+    out = target.format(s=session, d=tmp_path, d_name=tmp_path.name, s_name=session.name)
+    out = out if out.startswith("/") else str(tmp_path / out)
+    code, _, err = run_cli(capsys, "export", session, "--format", "csv", "-o", out, "--force")
+    assert_one_line_error(code, err, "is the session being exported")
+    assert session.read_bytes() == before
+    assert run_cli(capsys, "info", session)[0] == 0
+
+
+def test_replay_seek_past_the_end_says_so(capsys, sessions):
+    # the clean session is 2 s long (record_simulated above)
+    code, out, err = run_cli(capsys, "replay", sessions[0], "--fast", "--seek", "100")
+    assert_one_line_error(code, err, "seek 100 s is past the end of the session", "nothing to replay")
+    assert out == ""
+
+
+def test_record_to_a_directory_says_it_is_one(tmp_path, capsys):
+    code, _, err = run_cli(capsys, "record", "--rig", AIRFOIL, "--port", "sim://", "-o", tmp_path)
+    assert_one_line_error(code, err, str(tmp_path), "is a directory")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_a_rig_file_given_as_the_calibration_says_so(tmp_path, capsys, sessions):
+    for command in (["replay", sessions[0], "--fast"], ["export", sessions[0], "-o", tmp_path / "unused.csv"]):
+        code, _, err = run_cli(capsys, *command, "--calibration", AIRFOIL)
+        assert_one_line_error(code, err, f"{AIRFOIL} is a rig file, not a calibration (taprig calibrate writes one)")
+    assert not (tmp_path / "unused.csv").exists()
+
+
+def test_record_with_a_rig_file_as_the_calibration_says_so(tmp_path, capsys):
+    code, _, err = run_cli(capsys, "record", "--rig", AIRFOIL, "--port", "sim://", "-o", tmp_path / "x.taprig",
+                           "--calibration", AIRFOIL)
+    assert_one_line_error(code, err, "is a rig file, not a calibration")
+    assert not (tmp_path / "x.taprig").exists()
+
+
+@pytest.mark.parametrize("command", [["check"], ["sim", "--rig"]])
+def test_a_session_given_as_a_rig_file_says_so(capsys, sessions, command):
+    code, _, err = run_cli(capsys, *command, sessions[0])
+    assert_one_line_error(code, err, f"{sessions[0]} is not a text TOML rig file (a session? try taprig info)")
+    assert "codec" not in err
+
+
+def test_record_with_a_session_as_the_rig_says_so(tmp_path, capsys, sessions):
+    code, _, err = run_cli(capsys, "record", "--rig", sessions[0], "--port", "sim://", "-o", tmp_path / "x.taprig")
+    assert_one_line_error(code, err, "is not a text TOML rig file")

@@ -37,12 +37,12 @@ DATE = datetime(2024, 5, 1, 10, 30, tzinfo=timezone.utc)
 
 
 def test_manometer_vertical_water_column() -> None:
-    # REFERENCES.md: 50.0 mm of water at 20 °C, g = 9.80665 → 489.453 Pa (Δp = ρ g h, CoolProp density)
+    # docs/REFERENCES.md: 50.0 mm of water at 20 °C, g = 9.80665 → 489.453 Pa (Δp = ρ g h, CoolProp density)
     assert manometer_pressure(ManometerReading(0.050, liquid_temperature=293.15)) == pytest.approx(489.453, abs=5e-4)
 
 
 def test_manometer_inclined_tube() -> None:
-    # REFERENCES.md: 100 mm along a tube at 10°, 20 °C water → 169.985 Pa (Δp = ρ g L sin θ)
+    # docs/REFERENCES.md: 100 mm along a tube at 10°, 20 °C water → 169.985 Pa (Δp = ρ g L sin θ)
     reading = ManometerReading(0.100, angle=math.radians(10.0), liquid_temperature=293.15)
     assert manometer_pressure(reading) == pytest.approx(169.985, abs=5e-4)
 
@@ -191,3 +191,30 @@ def test_a_new_zero_keeps_the_span():
     assert (a.zero_counts, a.zero_std_error, a.gain, a.n_points, a.residual_rms) == (104.5, 0.1, 1.03, 5, 0.4)
     assert merged.channels["b"] == zero.channels["b"] and merged.date == zero.date
     assert spanned.channels["a"].zero_counts == 100.0  # frozen: the original is untouched
+
+
+def test_a_rig_file_is_not_taken_for_a_calibration(tmp_path: Path) -> None:
+    for rig_file in sorted(RIGS.glob("*.toml")):
+        with pytest.raises(RigError) as info:
+            load_calibration(rig_file)
+        assert str(info.value) == f"{rig_file} is a rig file, not a calibration (taprig calibrate writes one)"
+    # channels as an array of tables, the rig file's form, is enough on its own
+    with pytest.raises(RigError, match="is a rig file"):
+        calibration_from_text('[[channels]]\nindex = 0\nname = "p"\n', "x.toml")
+
+
+def test_a_binary_file_is_not_a_calibration(tmp_path: Path) -> None:
+    for name, data in (("session.toml", b"SQLite format 3\x00rest"), ("noise.json", b"\xf8\xff\xfe")):
+        (tmp_path / name).write_bytes(data)
+        with pytest.raises(RigError) as info:
+            load_calibration(tmp_path / name)
+        assert str(info.value) == (f"{tmp_path / name} is not a text TOML or JSON calibration file "
+                                   "(a session? try taprig info)")
+
+
+def test_a_calibration_still_loads(tmp_path: Path) -> None:
+    cal = Calibration(rig_id=RIG.id, date=DATE, channels={"u1": ChannelCalibration(zero_counts=10.0, gain=1.01)})
+    for suffix, fmt in ((".toml", "toml"), (".json", "json")):
+        path = tmp_path / f"cal{suffix}"
+        path.write_text(calibration_to_text(cal, fmt), encoding="utf-8")
+        assert load_calibration(path) == cal

@@ -146,3 +146,66 @@ def test_bad_calibration_input_is_a_user_error(text: str, message: str, tmp_path
     src.write_text(text, encoding="utf-8")
     assert main(["calibrate", str(RIGS / "cambered-balance.toml"), "--from", str(src), "-o", str(tmp_path / "c.toml")]) == 1
     assert message in capsys.readouterr().err
+
+
+def _calibrate(src: Path, *extra: str) -> int:
+    return main(["calibrate", str(RIGS / "cambered-balance.toml"), "--from", str(src), *extra])
+
+
+def test_calibrate_refuses_an_existing_output_unless_forced(tmp_path: Path, capsys) -> None:
+    src = tmp_path / "points.toml"
+    src.write_text(_toml_input(), encoding="utf-8")
+    out = tmp_path / "cal.toml"
+    out.write_text("keep me", encoding="utf-8")
+    assert _calibrate(src, "-o", str(out)) == 1
+    err = capsys.readouterr().err
+    assert "already exists" in err and "--force" in err and out.read_text(encoding="utf-8") == "keep me"
+    assert _calibrate(src, "-o", str(out), "--force") == 0
+    assert load_calibration(out).rig_id == RIG.id
+
+
+@pytest.mark.parametrize("name", ["cal.txt", "cal", "cal.csv"])
+def test_calibrate_writes_only_toml_or_json(tmp_path: Path, capsys, name: str) -> None:
+    src = tmp_path / "points.toml"
+    src.write_text(_toml_input(), encoding="utf-8")
+    assert _calibrate(src, "-o", str(tmp_path / name)) == 2
+    assert ".toml or .json" in capsys.readouterr().err and not (tmp_path / name).exists()
+
+
+def test_calibrate_to_a_directory_says_so(tmp_path: Path, capsys) -> None:
+    src = tmp_path / "points.toml"
+    src.write_text(_toml_input(), encoding="utf-8")
+    (tmp_path / "out.toml").mkdir()
+    assert _calibrate(src, "-o", str(tmp_path / "out.toml"), "--force") == 1
+    assert "is a directory" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("suffix,text", [(".csv", "step,reading_mm,u1,u2\n"), (".toml", 'channels = ["u1"]\n'),
+                                         (".csv", "step,reading_mm,u1\nend_zero,,1.0\n")])
+def test_calibrate_from_no_data_is_refused(tmp_path: Path, capsys, suffix: str, text: str) -> None:
+    src = tmp_path / f"empty{suffix}"
+    src.write_text(text, encoding="utf-8")
+    assert _calibrate(src, "-o", str(tmp_path / "c.toml")) == 1
+    assert "no zero and no span points" in capsys.readouterr().err and not (tmp_path / "c.toml").exists()
+
+
+def test_guided_with_no_zero_and_no_point_typed_writes_nothing(tmp_path: Path) -> None:
+    src = tmp_path / "counts.csv"
+    src.write_text("\n".join(line for line in _csv_input(with_readings=False).splitlines()
+                             if not line.startswith("zero,")) + "\n", encoding="utf-8")
+    out = tmp_path / "cal.toml"
+    parser = argparse.ArgumentParser()
+    calibrate_cmd.register(parser.add_subparsers())
+    args = parser.parse_args(["calibrate", str(RIGS / "cambered-balance.toml"), "--counts", str(src), "-o", str(out)])
+    answers = iter(["", "", "n"])  # Enter for the zero, no point, no end zero
+    with pytest.raises(calibrate_cmd.UserError, match="no zero and no span points"):
+        calibrate_cmd.run(args, ask=lambda prompt: next(answers), say=lambda line: None)
+    assert not out.exists()
+
+
+def test_calibrate_from_a_binary_file_says_so(tmp_path: Path, capsys) -> None:
+    src = tmp_path / "points.toml"
+    src.write_bytes(b"SQLite format 3\x00\xf8\xff")
+    assert _calibrate(src, "-o", str(tmp_path / "c.toml")) == 1
+    err = capsys.readouterr().err
+    assert "is not a text TOML or CSV calibration input" in err and "codec" not in err

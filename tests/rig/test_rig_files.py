@@ -7,6 +7,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from pydantic import ValidationError
 
 from taprig.cli import main
 from taprig.rig import Medium, RigError, RigKind, load_rig, parse_rig
@@ -124,9 +125,10 @@ def test_missing_file_and_missing_csv_are_user_errors(tmp_path: Path) -> None:
 
 def test_the_model_is_immutable() -> None:
     rig = load_rig(RIGS / "cambered-balance.toml")
-    with pytest.raises(Exception):
+    # pydantic v2 refuses assignment to a frozen model with a ValidationError (type "frozen_instance")
+    with pytest.raises(ValidationError, match="frozen"):
         rig.id = "other"
-    with pytest.raises(Exception):
+    with pytest.raises(ValidationError, match="frozen"):
         rig.geometry.chord = 1.0
 
 
@@ -150,3 +152,12 @@ def test_check_reports_each_file(tmp_path: Path, capsys) -> None:
     assert main(["check", str(RIGS / "cylinder.toml"), str(bad)]) == 1
     captured = capsys.readouterr()
     assert "rig 'cylinder-13tap'" in captured.out and "geometry.chord_mm" in captured.err
+
+
+@pytest.mark.parametrize("data", [b"SQLite format 3\x00\x10\x00", b"\x00\x01\x02\xf8\xff"])
+def test_a_binary_file_is_not_a_rig_file(tmp_path: Path, data: bytes) -> None:
+    path = tmp_path / "run.taprig"
+    path.write_bytes(data)
+    with pytest.raises(RigError) as info:
+        load_rig(path)
+    assert str(info.value) == f"{path} is not a text TOML rig file (a session? try taprig info)"

@@ -205,3 +205,33 @@ def test_open_session_gives_dataframes(session, replayed):
         assert s.counters["frames"] > 0 and s.counters["crc_errors"] == 0
         summary = s.summary()
         assert summary["scans"] == len(scans) and summary["points"] == 2 and summary["events"] == 2
+
+
+def test_the_session_itself_is_never_an_output_even_forced(tmp_path, session):
+    own = tmp_path / "own.taprig"
+    own.write_bytes(session.read_bytes())
+    before = own.read_bytes()
+    (tmp_path / "hard.csv").hardlink_to(own)
+    for out in (own, Path(f"{own}-wal"), tmp_path / "hard.csv", tmp_path / "." / own.name):
+        with pytest.raises(ExportError, match="is the session being exported"):
+            export_session(own, out, "csv", force=True)
+    # the points table beside the output: run.csv → run.points.csv, here the session's own name
+    points_named = tmp_path / "own.points.taprig"
+    points_named.write_bytes(before)
+    with pytest.raises(ExportError, match="is the session being exported"):
+        export_session(points_named, tmp_path / "own.taprig", "csv", force=True)
+    assert own.read_bytes() == before and points_named.read_bytes() == before
+
+
+def test_a_failed_rename_into_place_is_an_export_error(tmp_path, session, monkeypatch):
+    real_replace = export_mod.os.replace
+
+    def failing_replace(src, dst):
+        if Path(src).name.endswith(".partial"):
+            raise OSError(18, "Invalid cross-device link")
+        real_replace(src, dst)
+
+    monkeypatch.setattr(export_mod.os, "replace", failing_replace)
+    with pytest.raises(ExportError, match="run.csv: cannot write .*cross-device"):
+        export_session(session, tmp_path / "run.csv", "csv")
+    assert list(tmp_path.iterdir()) == []  # neither the output nor its .partial is left behind

@@ -263,3 +263,18 @@ def test_a_replay_can_be_iterated_again(recorded):
         second = [b.reduced for s in replay for b in s.blocks]
         assert replay.counters.as_dict() == counters
     assert_identical(first, second)
+
+
+def test_a_seek_past_the_last_chunk_is_refused(recorded):
+    path = recorded[0]
+    with Replay(path, seek_s=SECONDS / 2) as replay:  # inside the session: replays its second half
+        assert sum(s.n_scans for s in replay) > 0
+    with pytest.raises(ReplayError, match=r"seek 50 s is past the end of the session \(its last bytes arrived"):
+        Replay(path, seek_s=50.0)
+    with pytest.raises(ReplayError, match="past the end"):  # too far for nanoseconds in a float: still refused
+        Replay(path, seek_s=1e300)
+
+
+def test_an_endless_seek_is_a_value_error(recorded):
+    with pytest.raises(ValueError, match="finite"):
+        Replay(recorded[0], seek_s=math.inf)

@@ -165,3 +165,8 @@ def test_a_slow_disk_holds_the_producer_back_and_loses_nothing(tmp_path):
     assert w.waits > 0 and w.committed_chunks == 60 and w.error is None
     with SessionReader(tmp_path / "slow.taprig") as r:
         assert [c.data for c in r.chunks()] == [chunk_payload(i) for i in range(60)]
+
+
+def test_a_directory_is_not_a_session_file(tmp_path):
+    with pytest.raises(SessionError, match="is a directory; expected a session file"):
+        SessionReader(tmp_path)

@@ -4,13 +4,16 @@ Each subcommand lives in its own module under ``taprig.cli.commands`` and expose
 ``register(subparsers)``, which adds its parser and sets ``func`` to a callable
 ``func(args) -> int``. Modules are found by name, so adding a command touches no
 shared file. Errors meant for a user are raised as :class:`UserError` and printed
-on stderr as one line, with exit code 1 (2 for usage errors, as argparse does).
+on stderr as one line, with exit code 1 for bad data and 2 for a bad command line (as argparse does); the rule
+is in DEVELOPERS.md under Habits. The argparse types below check option values where they are parsed, so a bad
+value is a usage error (exit 2) naming the option, before any file or port is opened.
 """
 
 from __future__ import annotations
 
 import argparse
 import importlib
+import math
 import os
 import pkgutil
 import sys
@@ -24,6 +27,85 @@ class UserError(Exception):
     def __init__(self, message: str, exit_code: int = 1):
         super().__init__(message)
         self.exit_code = exit_code
+
+
+def _number(text: str) -> float:
+    """``text`` as a float, or NaN when it is not a number (the callers' range checks then refuse it)."""
+    try:
+        return float(text)
+    except ValueError:
+        return math.nan
+
+
+def bounded(low: float, high: float, unit: str, low_open: bool = False):
+    """An argparse type: a finite number in ``[low, high]`` (``(low, high]`` with ``low_open``), in ``unit``.
+
+    The message gives the range and the value as typed, in the user's unit, e.g. ``expected a number in
+    [-90, 90] deg, got '100'``.
+    """
+    def parse(text: str) -> float:
+        value = _number(text)
+        inside = (low < value if low_open else low <= value) and value <= high
+        if not (inside and math.isfinite(value)):
+            bracket = "(" if low_open else "["
+            raise argparse.ArgumentTypeError(f"expected a number in {bracket}{low:g}, {high:g}] {unit}, got {text!r}")
+        return value
+
+    return parse
+
+
+def finite_nonnegative(text: str) -> float:
+    """An argparse type: a finite number >= 0 (``inf`` and ``nan`` are refused)."""
+    value = _number(text)
+    if not (value >= 0 and math.isfinite(value)):
+        raise argparse.ArgumentTypeError(f"expected a finite number >= 0, got {text!r}")
+    return value
+
+
+def finite_positive(text: str) -> float:
+    """An argparse type: a finite number > 0."""
+    value = _number(text)
+    if not (value > 0 and math.isfinite(value)):
+        raise argparse.ArgumentTypeError(f"expected a finite number > 0, got {text!r}")
+    return value
+
+
+def positive_int(text: str) -> int:
+    """An argparse type: a whole number > 0 (a baud rate, a count)."""
+    try:
+        value = int(text)
+    except ValueError:
+        value = 0
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"expected a whole number > 0, got {text!r}")
+    return value
+
+
+def celsius(text: str) -> float:
+    """An argparse type: a finite temperature above absolute zero [°C]."""
+    from taprig.physics.constants import ZERO_CELSIUS
+
+    value = _number(text)
+    if not (value > -ZERO_CELSIUS and math.isfinite(value)):
+        raise argparse.ArgumentTypeError(f"expected a temperature above absolute zero ({-ZERO_CELSIUS:g} °C), "
+                                         f"got {text!r}")
+    return value
+
+
+#: The largest IEEE 754 binary32 number: a scan rate travels as f32 in START (PROTOCOL.md §3).
+_F32_MAX = (2 - 2**-23) * 2.0**127
+
+
+def scan_rate(text: str) -> float:
+    """An argparse type: a scan rate > 0 [Hz] that fits START's f32 field (the board checks its own limits)."""
+    value = _number(text)
+    if not (0 < value <= _F32_MAX):
+        raise argparse.ArgumentTypeError(f"expected a scan rate > 0 Hz, got {text!r}")
+    return value
+
+
+#: Latitude in degrees, for local gravity.
+latitude = bounded(-90.0, 90.0, "deg")
 
 
 def program_name() -> str:

@@ -6,6 +6,7 @@ User units at this edge only: ambient pressure in hPa, temperature in °C, humid
 from __future__ import annotations
 
 import argparse
+import math
 from pathlib import Path
 
 from typing import TYPE_CHECKING
@@ -57,11 +58,33 @@ def load_calibration_arg(path: str | None, rig: Rig) -> Calibration | None:
     return calibration
 
 
+def check_ambient_options(args: argparse.Namespace, rig: Rig) -> None:
+    """Refuse ambient options out of range, in the units they were typed in (exit 2: a bad command line)."""
+    from taprig.physics.constants import ZERO_CELSIUS
+    from taprig.physics.water import WATER_MAX_TEMPERATURE, WATER_MIN_TEMPERATURE
+    from taprig.rig import Medium
+
+    if args.pressure_hpa is not None and not (args.pressure_hpa > 0 and math.isfinite(args.pressure_hpa)):
+        raise UserError(f"--pressure-hpa {args.pressure_hpa:g} hPa: expected a room pressure > 0 hPa", 2)
+    t = args.temperature_c
+    if t is not None and not (t > -ZERO_CELSIUS and math.isfinite(t)):
+        raise UserError(f"--temperature-c {t:g} °C: expected a temperature above absolute zero "
+                        f"({-ZERO_CELSIUS:g} °C)", 2)
+    low, high = WATER_MIN_TEMPERATURE - ZERO_CELSIUS, WATER_MAX_TEMPERATURE - ZERO_CELSIUS
+    if t is not None and rig.fluid.medium is Medium.WATER and not low <= t <= high:
+        raise UserError(f"--temperature-c {t:g} °C: the water properties are known for {low:g} to {high:g} °C "
+                        f"(rig {rig.id!r} is a water rig)", 2)
+    h = args.humidity_pct
+    if h is not None and not 0 <= h <= 100:
+        raise UserError(f"--humidity-pct {h:g} %: expected a relative humidity from 0 to 100 %", 2)
+
+
 def ambient_arg(args: argparse.Namespace, rig: Rig) -> Ambient:
     """The ambient conditions from the options, defaulting to the rig file's fluid table."""
     from taprig.physics.units import Unit, to_si
     from taprig.reduce import ambient_for
 
+    check_ambient_options(args, rig)
     overrides = {}
     if args.pressure_hpa is not None:
         overrides["pressure"] = float(to_si(args.pressure_hpa, Unit.parse("hPa")))
@@ -91,6 +114,8 @@ def new_output_path(path: str | None, default_dir: str, stem: str) -> Path:
 
     if path:
         out = Path(path)
+        if out.is_dir():
+            raise UserError(f"{out}: is a directory; give a file name for the session, such as {out / 'run.taprig'}")
         if out.exists():
             raise UserError(f"{out}: already exists; sessions are never overwritten, choose another name")
     else:

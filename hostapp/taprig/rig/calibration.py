@@ -33,6 +33,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from taprig.rig.errors import RigError, RigIssue, issues_from_validation
+from taprig.rig.loader import WrongKindOfFile, read_text_file
 from taprig.rig.model import Rig
 from taprig.rig.sensors import CalibrationLevel
 
@@ -177,19 +178,31 @@ def calibration_to_text(calibration: Calibration, fmt: Literal["toml", "json"] =
     return "\n".join(lines) + "\n"
 
 
+def _is_rig_file(data) -> bool:
+    """True for the parsed text of a rig file: it has ``kind`` or ``sensors``, or ``channels`` as an array of
+    tables (a calibration's ``channels`` is one table keyed by channel name, and it has neither other key)."""
+    if not isinstance(data, dict):
+        return False
+    channels = data.get("channels")
+    listed = isinstance(channels, list) and bool(channels) and all(isinstance(c, dict) for c in channels)
+    return "kind" in data or "sensors" in data or listed
+
+
 def calibration_from_text(text: str, source: str = "<string>", fmt: Literal["toml", "json"] | None = None) -> Calibration:
     """Parse and validate a calibration (TOML, or JSON when ``fmt="json"`` or the text starts with ``{``).
 
     Raises
     ------
     RigError
-        Naming the source and every bad key.
+        Naming the source and every bad key; a :class:`~taprig.rig.loader.WrongKindOfFile` for a rig file's text.
     """
     fmt = fmt or ("json" if text.lstrip().startswith("{") else "toml")
     try:
         data = json.loads(text) if fmt == "json" else tomllib.loads(text)
     except (json.JSONDecodeError, tomllib.TOMLDecodeError) as exc:
         raise RigError(source, [RigIssue("", f"not valid {fmt.upper()}: {exc}")]) from None
+    if _is_rig_file(data):
+        raise WrongKindOfFile(source, "is a rig file, not a calibration (taprig calibrate writes one)")
     try:
         return Calibration.model_validate(data)
     except ValidationError as exc:
@@ -197,11 +210,11 @@ def calibration_from_text(text: str, source: str = "<string>", fmt: Literal["tom
 
 
 def load_calibration(path: str | Path) -> Calibration:
-    """Read a calibration file (TOML or JSON, by its suffix or first character); RigError on a bad file."""
+    """Read a calibration file (TOML or JSON, by its suffix or first character); RigError on a bad file.
+
+    A :class:`~taprig.rig.loader.WrongKindOfFile` (a RigError) for a binary file or a rig file.
+    """
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise RigError(str(path), [RigIssue("", f"cannot read the calibration file: {exc}")]) from None
+    text = read_text_file(path, "calibration file", "TOML or JSON")
     return calibration_from_text(text, str(path), "json" if path.suffix.lower() == ".json" else None)
 

@@ -249,6 +249,8 @@ def parse_input_toml(text: str, source: str, rig: Rig) -> CalibrationInput:
     channels = _check_channels(tuple(data.get("channels", _default_channels(rig))), rig, source)
     manometer = manometer_from_table(data.get("manometer", {}), source)
     blocks, refs, labels, ref_u = {}, [], [], []
+    if "zero" not in data and not data.get("points"):
+        raise _nothing_to_calibrate(source, "a [zero] table or [[points]]")
     for step in ("zero", "end_zero"):
         if step in data:
             blocks[step] = _block(data[step].get("counts"), f"{step}.counts", len(channels), source)
@@ -261,6 +263,11 @@ def parse_input_toml(text: str, source: str, rig: Rig) -> CalibrationInput:
             blocks[label] = _block(point["counts"], f"points[{k}].counts", len(channels), source)
     return CalibrationInput(channels, manometer, tuple(refs), tuple(labels), blocks,
                             str(data.get("operator_note", "")), data.get("drift_tolerance_pa"), tuple(ref_u))
+
+
+def _nothing_to_calibrate(source: str, expected: str) -> RigError:
+    """The error for an input without a zero and without span points: a calibration from no data."""
+    return RigError(source, [RigIssue("", f"no zero and no span points: nothing to calibrate (expected {expected})")])
 
 
 def _check_channels(channels: tuple[str, ...], rig: Rig, source: str) -> tuple[str, ...]:
@@ -288,6 +295,8 @@ def parse_input_csv(text: str, source: str, rig: Rig, manometer: Manometer) -> C
         readings.setdefault(step, row[1].strip())
     blocks = {s: _block(v, f"step {s!r}", len(channels), source) for s, v in grouped.items()}
     labels = tuple(s for s in grouped if s not in ("zero", "end_zero"))
+    if "zero" not in grouped and not labels:
+        raise _nothing_to_calibrate(source, "rows of step 'zero' or of a point")
     refs = tuple(_reference({"reading_mm": _number(readings[s], s, source)} if readings[s] else {}, manometer,
                             f"step {s!r}", source) for s in labels)
     return CalibrationInput(channels, manometer, refs, labels, blocks)
@@ -317,6 +326,8 @@ def calibrate(rig: Rig, plan: CalibrationInput, counts_source: CountsSource, dat
         raise ValueError("every span point needs a reference pressure (a manometer reading or reference_pa)")
     sensors = [rig.sensor_of(n) for n in plan.channels]
     zero_block = counts_source("zero")
+    if zero_block is None and not plan.labels:  # guided mode on a counts file without a zero, no point typed
+        raise ValueError("no zero and no span points: nothing to calibrate")
     zero = wind_off_zero(zero_block) if zero_block is not None else None
     span = None
     if plan.labels:

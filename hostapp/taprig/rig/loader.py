@@ -21,6 +21,36 @@ from taprig.rig.sensors import SENSOR_KINDS
 COORDINATES_KEY = "section.coordinates_file"
 
 
+class WrongKindOfFile(RigError):
+    """A file of another kind than the one expected (binary, or a rig file given as a calibration).
+
+    ``str()`` is one sentence, ``"FILE what"``, instead of a list of issues: the keys of the wrong file would only
+    bury the one thing to say.
+    """
+
+    def __init__(self, source: str, what: str):
+        super().__init__(source, [RigIssue("", what)])
+        self.args = (f"{source} {what}",)
+
+
+def read_text_file(path: Path, what: str, formats: str) -> str:
+    """The text of ``path`` for a loader; RigError when it cannot be read, WrongKindOfFile when it is not text.
+
+    ``what`` names the file kind ("rig file") and ``formats`` the text formats it may be in ("TOML"), for the
+    messages. A NUL byte means binary even when the bytes
+    happen to decode (TOML and JSON forbid it in a document; an SQLite session starts with one).
+    """
+    try:
+        text = path.read_text(encoding="utf-8")
+    except UnicodeDecodeError:
+        text = "\x00"
+    except OSError as exc:
+        raise RigError(str(path), [RigIssue("", f"cannot read the {what}: {exc}")]) from None
+    if "\x00" in text:
+        raise WrongKindOfFile(str(path), f"is not a text {formats} {what} (a session? try taprig info)")
+    return text
+
+
 def _clean_loc(loc: tuple) -> tuple:
     """Drop the union tag pydantic puts after ``sensors.NAME`` (``sensors.tap.ratiometric.b`` → ``sensors.tap.b``)."""
     if len(loc) > 2 and loc[0] == "sensors" and loc[2] in SENSOR_KINDS:
@@ -124,13 +154,11 @@ def load_rig(path: str | Path) -> Rig:
     Raises
     ------
     RigError
-        If the file cannot be read or does not validate; the message names the file.
+        If the file cannot be read or does not validate; the message names the file. A
+        :class:`WrongKindOfFile` if it is not text (a session file, a capture).
     """
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise RigError(str(path), [RigIssue("", f"cannot read the rig file: {exc}")]) from None
+    text = read_text_file(path, "rig file", "TOML")
     attachments = {}
     for name in _named_files(text):
         try:

@@ -147,6 +147,20 @@ def check_output(path: Path, force: bool) -> None:
         raise ExportError(f"{parent}: directory is not writable")
 
 
+def refuse_overwriting_session(session: Path, outputs: tuple[Path, ...]) -> None:
+    """Refuse an output that is the session being read, or its ``-wal``/``-shm`` file, ``--force`` or not.
+
+    Compared by resolved path (symlinks, ``./``, ``..``) and, for a file that exists, by identity (a hard link).
+    """
+    session = Path(session)
+    own = {session.resolve()} | {Path(f"{session}{tail}").resolve() for tail in ("-wal", "-shm")}
+    for out in outputs:
+        same = out.resolve() in own or (out.exists() and session.exists() and os.path.samefile(out, session))
+        if same:
+            raise ExportError(f"{out}: is the session being exported ({session}) or one of its files; "
+                              "choose another output name (the session is never overwritten)")
+
+
 class _Sink:
     """A table file written under a temporary name and renamed into place by :meth:`commit`."""
 
@@ -173,8 +187,12 @@ class _Sink:
             raise ExportError(f"{self.path}: cannot write ({exc})") from None
 
     def commit(self) -> None:
-        self._writer.close()
-        os.replace(self.partial, self.path)
+        try:
+            self._writer.close()
+            os.replace(self.partial, self.path)
+        except OSError as exc:
+            self.partial.unlink(missing_ok=True)
+            raise ExportError(f"{self.path}: cannot write ({exc})") from None
 
     def abort(self) -> None:
         try:
@@ -216,6 +234,7 @@ def export_session(session: str | Path, out: str | Path, fmt: str, calibration=N
         raise ExportError(f"unknown export format {fmt!r}; expected one of {', '.join(FORMATS)}")
     out = Path(out)
     points_out = points_out or points_path(out)
+    refuse_overwriting_session(Path(session), (out, points_out))
     with Replay(session, calibration=calibration) as replay:
         n_points = len(replay.reader.points())
         check_output(out, force)

@@ -21,6 +21,7 @@ is also cheap.
 from __future__ import annotations
 
 import bisect
+import math
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -179,7 +180,8 @@ class Replay:
     speed : float, optional
         Replay at ``speed`` × real time, paced on the recorded host times; None: as fast as possible.
     seek_s : float
-        Start reducing (and pacing) at this host time after the session start [s].
+        Start reducing (and pacing) at this host time after the session start [s]; a seek past the last recorded
+        chunk is a :class:`ReplayError` (it would replay nothing).
     clock : Clock, optional
         Time source of a paced replay (tests pass a simulated one).
     batch_scans : int
@@ -194,8 +196,8 @@ class Replay:
                  batch_scans: int = FAST_BATCH_SCANS):
         if speed is not None and not speed > 0:
             raise ValueError(f"replay speed must be > 0 (or None for as fast as possible); got {speed}")
-        if not seek_s >= 0:
-            raise ValueError(f"seek must be >= 0 s; got {seek_s}")
+        if not (seek_s >= 0 and math.isfinite(seek_s)):
+            raise ValueError(f"seek must be a finite number >= 0 s; got {seek_s}")
         self._owns = not isinstance(session, SessionReader)
         self.reader = SessionReader(session) if self._owns else session
         try:
@@ -214,11 +216,26 @@ class Replay:
         self.speed, self.seek_s, self.batch_scans = speed, float(seek_s), int(batch_scans)
         self.clock = clock or SystemClock()
         self.start_ns = session_start_ns(self.reader)
-        self._first_chunk_ns = self.reader.chunk_summary()[2] or 0
-        self.total_chunks = self.reader.chunk_summary()[0]
+        self.total_chunks, _, first_ns, last_ns = self.reader.chunk_summary()
+        self._first_chunk_ns = first_ns or 0
+        self._check_seek(last_ns)
         self.decoder = StreamDecoder()
         self.first_t_ns: int | None = None
         self._origin: tuple[int, float] | None = None
+
+    def _check_seek(self, last_ns: int | None) -> None:
+        """Refuse a seek past the last recorded chunk (it would replay nothing), closing the file."""
+        if self.seek_s == 0:
+            return
+        start_ns = self.start_ns or 0
+        # in seconds first: a seek far past the end would overflow as nanoseconds; then exactly as __iter__ skips
+        if (last_ns is None or (last_ns - start_ns) / 1e9 < self.seek_s
+                or last_ns < start_ns + round(self.seek_s * 1e9)):
+            self.close()
+            held = ("no recorded bytes" if last_ns is None
+                    else f"its last bytes arrived {(last_ns - start_ns) / 1e9:.2f} s after the start")
+            raise ReplayError(f"{self.reader.path}: seek {self.seek_s:g} s is past the end of the session ({held}); "
+                              "nothing to replay")
 
     def _reducer(self, calibration: Calibration | None) -> Reducer:
         if calibration is not None and calibration.problems_with(self.rig):

@@ -23,6 +23,8 @@ from typing import Any, Iterator
 
 FORMAT_NAME = "taprig-session"
 FORMAT_VERSION = 1
+#: The first 16 bytes of every SQLite database, so of every session file (sqlite.org/fileformat.html §1.3.1).
+SQLITE_HEADER = b"SQLite format 3\x00"
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -94,7 +96,7 @@ class SessionWriter:
         meta: dict[str, str],
         commit_interval_s: float = 0.25,
         max_file_bytes: int | None = None,
-        max_queued_bytes: int = 64 * 2**20,
+        max_queued_bytes: int = 16 * 2**20,
     ):
         self.path = Path(path)
         if self.path.exists():
@@ -252,11 +254,13 @@ class SessionReader:
 
     def __init__(self, path: str | Path):
         self.path = Path(path)
+        if self.path.is_dir():
+            raise SessionError(f"{self.path}: is a directory; expected a session file (.taprig)")
         if not self.path.is_file():
             raise SessionError(f"{self.path}: no such session file")
         with open(self.path, "rb") as fh:
-            head = fh.read(16)
-        if head != b"SQLite format 3\x00":
+            head = fh.read(len(SQLITE_HEADER))
+        if head != SQLITE_HEADER:
             raise SessionError(f"{self.path}: not a taprig session file (not an SQLite database)")
         try:
             self._con = _connect(self.path, readonly=True)

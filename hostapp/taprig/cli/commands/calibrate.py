@@ -17,9 +17,10 @@ from dataclasses import replace
 from datetime import datetime, timezone
 from pathlib import Path
 
-from taprig.cli import UserError
+from taprig.cli import UserError, bounded, celsius, finite_positive, latitude
 from taprig.physics.constants import STANDARD_GRAVITY, ZERO_CELSIUS
 from taprig.physics.hydrostatics import normal_gravity
+from taprig.physics.water import WATER_MAX_TEMPERATURE, WATER_MIN_TEMPERATURE
 from taprig.rig import (
     Calibration,
     CalibrationInput,
@@ -42,20 +43,30 @@ def register(sub) -> None:
     src.add_argument("--from", dest="from_file", metavar="FILE", help="readings and counts of every step (TOML or CSV)")
     src.add_argument("--counts", metavar="FILE", help="guided mode: counts of each step (TOML or CSV); readings are asked")
     p.add_argument("-o", "--output", metavar="FILE", help="calibration file to write (.toml or .json; default RIGID.cal.toml)")
+    p.add_argument("--force", action="store_true", help="replace an output file that already exists")
     p.add_argument("--note", default=None, help="operator note stored in the calibration")
     p.add_argument("--date", default=None, help="calibration date-time, ISO 8601 (default: now, UTC)")
-    p.add_argument("--angle-deg", type=float, default=90.0, help="manometer tube angle above horizontal (CSV input, guided) [deg]")
-    p.add_argument("--liquid-temp-c", type=float, default=20.0, help="water temperature in the manometer [°C]")
-    p.add_argument("--liquid-density", type=float, default=None, help="manometer liquid density if not water [kg/m³]")
-    p.add_argument("--latitude-deg", type=float, default=None, help="local gravity from latitude (default standard gravity)")
+    p.add_argument("--angle-deg", type=bounded(0.0, 90.0, "deg", low_open=True), default=90.0,
+                   help="manometer tube angle above horizontal (CSV input, guided) [deg]")
+    p.add_argument("--liquid-temp-c", type=celsius, default=20.0, help="water temperature in the manometer [°C]")
+    p.add_argument("--liquid-density", type=finite_positive, default=None,
+                   help="manometer liquid density if not water [kg/m³]")
+    p.add_argument("--latitude-deg", type=latitude, default=None,
+                   help="local gravity from latitude, -90 to 90 (default standard gravity) [deg]")
     p.add_argument("--strict", action="store_true", help="exit 1 if any channel is out of tolerance")
     p.set_defaults(func=run)
 
 
 def manometer_from_args(args) -> Manometer:
-    """The manometer set-up given on the command line (operator units → SI)."""
-    if not 0.0 < args.angle_deg <= 90.0:
-        raise UserError(f"--angle-deg must be in (0, 90], got {args.angle_deg:g}")
+    """The manometer set-up given on the command line (operator units → SI).
+
+    The argparse types have checked each value; here the water temperature is checked against the range of the
+    water-density formula, in °C as typed (with ``--liquid-density`` the temperature is not used).
+    """
+    low, high = WATER_MIN_TEMPERATURE - ZERO_CELSIUS, WATER_MAX_TEMPERATURE - ZERO_CELSIUS
+    if args.liquid_density is None and not low <= args.liquid_temp_c <= high:
+        raise UserError(f"--liquid-temp-c {args.liquid_temp_c:g} °C: the water density is known for {low:g} to "
+                        f"{high:g} °C; give --liquid-density for a liquid outside that range", 2)
     gravity = STANDARD_GRAVITY if args.latitude_deg is None else float(normal_gravity(math.radians(args.latitude_deg)))
     return Manometer(angle=math.radians(args.angle_deg), liquid_density=args.liquid_density,
                      liquid_temperature=ZERO_CELSIUS + args.liquid_temp_c, gravity=gravity)
@@ -65,8 +76,10 @@ def read_input(path: str, rig, args) -> CalibrationInput:
     """Parse a calibration input file, by suffix: ``.csv`` or TOML."""
     try:
         text = Path(path).read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise UserError(f"cannot read {path}: {exc}") from None
+    except UnicodeDecodeError:
+        raise UserError(f"{path} is not a text TOML or CSV calibration input (a session? try taprig info)") from None
+    except OSError as exc:
+        raise UserError(f"cannot read {path}: {exc.strerror or exc}") from None
     if path.lower().endswith(".csv"):
         return parse_input_csv(text, path, rig, manometer_from_args(args))
     return parse_input_toml(text, path, rig)
@@ -116,12 +129,30 @@ def _date(text: str | None) -> datetime:
     try:
         return datetime.fromisoformat(text)
     except ValueError:
-        raise UserError(f"--date: expected an ISO 8601 date-time such as 2024-05-01T10:30, got {text!r}") from None
+        raise UserError(f"--date: expected an ISO 8601 date-time such as 2024-05-01T10:30, got {text!r}", 2) from None
+
+
+def output_path(args, rig_id: str) -> Path:
+    """The calibration file to write: ``.toml`` or ``.json`` (exit 2 otherwise), new unless ``--force``.
+
+    Checked before any step is taken, so an operator never does a guided calibration that cannot be saved.
+    """
+    out = Path(args.output or f"{rig_id}.cal.toml")
+    if out.suffix.lower() not in (".toml", ".json"):
+        raise UserError(f"{out}: a calibration is written as .toml or .json; give a name with one of those", 2)
+    if out.is_dir():
+        raise UserError(f"{out}: is a directory; give a file name for the calibration")
+    if out.exists() and not args.force:
+        raise UserError(f"{out}: already exists; choose another name or pass --force to replace it")
+    if not out.parent.is_dir():
+        raise UserError(f"{out.parent}: no such directory to write {out.name} into")
+    return out
 
 
 def run(args, ask: Callable[[str], str] = input, say: Callable[[str], None] = print) -> int:
     try:
         rig = load_rig(args.rig)
+        out = output_path(args, rig.id)
         plan = read_input(args.from_file or args.counts, rig, args)
     except RigError as exc:
         raise UserError(str(exc)) from None
@@ -141,7 +172,6 @@ def run(args, ask: Callable[[str], str] = input, say: Callable[[str], None] = pr
         cal = calibrate(rig, plan, source, _date(args.date))
     except ValueError as exc:
         raise UserError(str(exc)) from None
-    out = Path(args.output or f"{rig.id}.cal.toml")
     try:
         out.write_text(calibration_to_text(cal, "json" if out.suffix.lower() == ".json" else "toml"), encoding="utf-8")
     except OSError as exc:

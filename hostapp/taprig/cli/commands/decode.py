@@ -19,8 +19,11 @@ from dataclasses import fields, is_dataclass
 from enum import Enum
 from pathlib import Path
 
-from taprig.cli import UserError
+from taprig.cli import UserError, bounded, finite_nonnegative, positive_int, program_name, scan_rate
 
+#: Longest single wait for the link's next item [s]; a long --seconds is waited out in such steps (a queue
+#: timeout beyond the platform's time_t would overflow).
+WAIT_STEP_S = 1.0
 #: Files are fed to the decoder in chunks of this size, as the link reads a fast port.
 FEED_CHUNK = 1 << 16
 _HEX_TEXT = set(string.hexdigits + string.whitespace)
@@ -33,12 +36,13 @@ def register(sub) -> None:
     p.add_argument("--format", choices=("auto", "raw", "hex", "vectors"), default="auto",
                    help="how to read FILE (default: guess from its content)")
     p.add_argument("--case", help="with a vector file: decode only the case of this name")
-    p.add_argument("--seconds", type=float, default=5.0, metavar="S", help="how long to read a port (default 5)")
+    p.add_argument("--seconds", type=finite_nonnegative, default=5.0, metavar="S", help="how long to read a port (default 5)")
     p.add_argument("--no-handshake", action="store_true", help="port: only listen (send nothing, not even DESCRIBE)")
-    p.add_argument("--start", type=float, metavar="RATE", help="port: start streaming all channels at RATE [Hz]")
-    p.add_argument("--baud", type=int, default=115200, help="port: baud rate for UART bridges (default 115200)")
-    p.add_argument("--handshake-timeout", type=float, default=3.0, metavar="S",
-                   help="port: give up when no DESCRIPTION arrives within S seconds (default 3)")
+    p.add_argument("--start", type=scan_rate, metavar="RATE", help="port: start streaming all channels at RATE [Hz]")
+    p.add_argument("--baud", type=positive_int, default=115200, help="port: baud rate for UART bridges (default 115200)")
+    p.add_argument("--handshake-timeout", type=bounded(0.0, 3600.0, "s", low_open=True), default=3.0,
+                   metavar="S", help="port: give up when no DESCRIPTION arrives within S seconds (default 3, at most "
+                                     "an hour)")
     p.set_defaults(func=run)
 
 
@@ -136,6 +140,30 @@ def _vector_cases(path: Path, data: bytes, only: str | None) -> list[dict]:
     return cases
 
 
+def _database_refusal(path: Path) -> str:
+    """Why an SQLite file is not decoded: a session has its own commands; any other database is no capture."""
+    from taprig.session.store import SessionError, SessionReader
+
+    try:
+        SessionReader(path).close()
+    except SessionError:
+        return f"{path} is an SQLite database, not a capture file (decode reads raw, hex or golden-vector files)"
+    name = program_name()
+    return f"{path} is a taprig session file: use {name} info / {name} replay"
+
+
+def _no_frames_warning(path: Path, data: bytes, fmt: str, counters: dict) -> str:
+    """The stderr line for a file with no good frame in it, with a hint when the file is plain text."""
+    line = (f"taprig decode: warning: {path}: no good frames in {len(data)} bytes read as {fmt} "
+            f"(framing errors {counters['framing_errors']}, crc errors {counters['crc_errors']}, "
+            f"oversize {counters['oversize']})")
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError:
+        return line
+    return line + "; the file is text, not a capture (a rig or calibration file?)" if fmt == "raw" else line
+
+
 def _decode_bytes(data: bytes, decoder, extra: dict | None = None) -> None:
     for start in range(0, len(data), FEED_CHUNK):
         for item in decoder.feed(data[start:start + FEED_CHUNK]):
@@ -144,18 +172,24 @@ def _decode_bytes(data: bytes, decoder, extra: dict | None = None) -> None:
 
 def _decode_file(path: Path, fmt: str, only_case: str | None) -> dict:
     from taprig.protocol import StreamDecoder
+    from taprig.session.store import SQLITE_HEADER
 
     try:
         data = path.read_bytes()
     except OSError as exc:
         raise UserError(f"cannot read {path}: {exc.strerror or exc}") from None
+    if data.startswith(SQLITE_HEADER):
+        raise UserError(_database_refusal(path))
     fmt = _guess_format(path, data) if fmt == "auto" else fmt
     if fmt != "vectors":
         if only_case is not None:
             raise UserError("--case applies to golden-vector files only")
         decoder = StreamDecoder()
         _decode_bytes(_hex_bytes(path, data) if fmt == "hex" else data, decoder)
-        return decoder.counters.as_dict()
+        counters = decoder.counters.as_dict()
+        if counters["frames"] == 0:
+            print(_no_frames_warning(path, data, fmt, counters), file=sys.stderr)
+        return counters
     totals: dict[str, int] = {}
     for case in _vector_cases(path, data, only_case):
         name = case.get("name", "")
@@ -222,7 +256,7 @@ def _decode_port(args) -> dict:
     deadline = time.monotonic() + max(0.0, args.seconds)
     try:
         while time.monotonic() < deadline:
-            _print_inbox(inbox, deadline - time.monotonic())
+            _print_inbox(inbox, min(deadline - time.monotonic(), WAIT_STEP_S))
         if args.start is not None:
             try:
                 link.stop_stream()

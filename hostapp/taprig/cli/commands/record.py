@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 import time
 
-from taprig.cli import UserError
+from taprig.cli import UserError, finite_positive, scan_rate
 from taprig.cli.runopts import add_rig_options
 
 
@@ -16,8 +16,8 @@ def register(sub) -> None:
     add_rig_options(p)
     p.add_argument("--port", required=True, metavar="PORT_OR_URL",
                    help="serial port (/dev/ttyACM0, COM5) or URL (sim://?seed=1 simulates the --rig)")
-    p.add_argument("--duration", type=float, metavar="S", help="stop after S seconds (default: until Ctrl-C)")
-    p.add_argument("--rate", type=float, default=500.0, metavar="HZ", help="scan rate [Hz] (default 500)")
+    p.add_argument("--duration", type=finite_positive, metavar="S", help="stop after S seconds (default: until Ctrl-C)")
+    p.add_argument("--rate", type=scan_rate, default=500.0, metavar="HZ", help="scan rate [Hz] (default 500)")
     p.add_argument("-o", "--output", metavar="FILE", help="session file to write (default: sessions/<rig>-<time>.taprig)")
     p.add_argument("--quiet", action="store_true", help="no live line, only the final summary")
     p.set_defaults(func=run)

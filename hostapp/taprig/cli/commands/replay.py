@@ -9,7 +9,6 @@ export`` and ``taprig info`` too.
 
 from __future__ import annotations
 
-import argparse
 import contextlib
 import math
 import sys
@@ -17,7 +16,7 @@ import time
 
 import numpy as np
 
-from taprig.cli import UserError
+from taprig.cli import UserError, finite_nonnegative, finite_positive
 
 
 def register(sub) -> None:
@@ -26,34 +25,14 @@ def register(sub) -> None:
                                    "run's reducer, at real time × SPEED or as fast as possible.")
     p.add_argument("file", metavar="FILE", help="session file (.taprig)")
     pace = p.add_mutually_exclusive_group()
-    pace.add_argument("--speed", type=_positive, default=1.0, metavar="X",
+    pace.add_argument("--speed", type=finite_positive, default=1.0, metavar="X",
                       help="play at X × real time (default 1)")
     pace.add_argument("--fast", action="store_true", help="play as fast as possible")
     p.add_argument("--calibration", metavar="CAL", help="re-reduce with this calibration file instead of the session's")
-    p.add_argument("--seek", type=_non_negative, default=0.0, metavar="S",
+    p.add_argument("--seek", type=finite_nonnegative, default=0.0, metavar="S",
                    help="start S seconds after the session start (decoding still starts at the first byte)")
     p.add_argument("--quiet", action="store_true", help="only the final summary, no line per second")
     p.set_defaults(func=run)
-
-
-def _positive(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        value = math.nan
-    if not value > 0 or not math.isfinite(value):
-        raise argparse.ArgumentTypeError(f"expected a number > 0, got {text!r}")
-    return value
-
-
-def _non_negative(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        value = math.nan
-    if not value >= 0 or not math.isfinite(value):
-        raise argparse.ArgumentTypeError(f"expected a number >= 0 [s], got {text!r}")
-    return value
 
 
 # -- helpers shared by replay, export and info -----------------------------------------------------------------

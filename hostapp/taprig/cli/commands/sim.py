@@ -19,7 +19,7 @@ import sys
 import time
 from dataclasses import fields
 
-from taprig.cli import UserError
+from taprig.cli import UserError, finite_positive
 
 #: Longest wait between two looks at the clock [s]: bounds the reaction to a stop request.
 TICK_S = 0.05
@@ -37,7 +37,7 @@ def register(sub) -> None:
 
     p = sub.add_parser("sim", help="run a simulated rig on a pseudo-terminal and print its device path")
     p.add_argument("--rig", required=True, help="rig file (TOML) to simulate")
-    p.add_argument("--seconds", type=float, default=None, help="stop after this many seconds of wall time")
+    p.add_argument("--seconds", type=finite_positive, default=None, help="stop after this many seconds of wall time")
     for f in fields(SimOptions):
         p.add_argument(f"--{f.name.replace('_', '-')}", dest=f"opt_{f.name}", metavar="VALUE",
                        help=f"{SimOptions.help_of(f.name)} (default {_default_text(f.default)})")
