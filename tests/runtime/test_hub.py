@@ -53,3 +53,11 @@ def test_close_wakes_waiters_and_unsubscribe():
     assert not t.is_alive() and result == [None]
     sub.close()
     assert hub.subscriber_count == 0
+
+
+def test_history_keeps_summaries_not_whole_values():
+    # A producer may publish megabytes per value; the trend history must hold only what summarize returns.
+    hub = Hub(history_len=3, summarize=lambda value: len(value))
+    for n in (10, 20, 30, 40):
+        hub.publish(b"x" * n)
+    assert hub.snapshot() == [20, 30, 40] and hub.latest == b"x" * 40

@@ -74,7 +74,9 @@ def test_soak_with_faults(tmp_path):
         scans = sum(b.raw.n_scans for step in replay for b in step.blocks)
         assert replay.counters.as_dict() == live.as_dict() and scans == acq.scans
     # Memory flat once the 30 s raw window and the caches are full (from the second sample on): what Python and
-    # numpy hold must not grow; the resident size may breathe with the allocator but must not run away.
+    # numpy hold must not grow beyond the bounded backlogs (the recorder's queue of at most 16 MiB of chunks and
+    # the reducer's 32 chunks, both of which fill when the machine is busy); the resident size may breathe with
+    # the allocator but must not run away.
     if len(traced) >= 4:
-        assert max(traced[2:]) - traced[1] < 32, [round(m) for m in traced]
+        assert max(traced[2:]) - traced[1] < 16 + 40, [round(m) for m in traced]
         assert max(rss[2:]) - rss[1] < 150, [round(m) for m in rss]

@@ -51,6 +51,17 @@ class LiveState:
     display_skipped: int
     last_log: str = ""
 
+    def summary(self) -> dict:
+        """A few numbers of this state for the hub's trend history (block means; NaN where there are none)."""
+        b = self.block
+        out = {"host_ns": self.host_ns, "scans": self.scans, "frames": self.counters.get("frames", 0)}
+        if b is not None:
+            out["t_ns"] = int(b.t_ns[-1])
+            for name in ("q_pa", "v_ms", "alpha_rad", "cl", "cd_p", "cm_qc"):
+                values = getattr(b, name)
+                out[name] = float(np.nanmean(values)) if np.isfinite(values).any() else math.nan  # NaN: no flow
+        return out
+
 
 @dataclass
 class _Window:
@@ -93,7 +104,7 @@ class Acquisition:
         self.on_block = on_block
         self.rig = rig
         self.writer = writer
-        self.hub: Hub[LiveState] = hub or Hub()
+        self.hub: Hub[LiveState] = hub or Hub(summarize=LiveState.summary)
         self.description: Description | None = None
         self.setpoints: dict[str, float] = {a.name: a.safe for a in rig.actuators}
         # What a chunk is reduced with is chosen by the chunk's host time, by the same rules as replay

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import threading
 from collections import deque
-from typing import Any, Generic, TypeVar
+from typing import Any, Callable, Generic, TypeVar
 
 T = TypeVar("T")
 
@@ -57,15 +57,18 @@ class Subscription(Generic[T]):
 
 
 class Hub(Generic[T]):
-    """Latest value, a bounded history of values, and latest-wins fan-out.
+    """Latest value, a bounded history, and latest-wins fan-out.
 
-    ``history`` keeps at most ``history_len`` values (a deque): memory stays flat over a run of hours.
+    ``history`` keeps at most ``history_len`` entries (a deque): memory stays flat over a run of hours. Each entry
+    is ``summarize(value)`` — a few numbers for a trend plot, not the whole value, which can hold megabytes of
+    arrays when the producer hands over large blocks — or the value itself when no ``summarize`` is given.
     """
 
-    def __init__(self, history_len: int = 64):
+    def __init__(self, history_len: int = 600, summarize: Callable[[T], Any] | None = None):
         self._lock = threading.Lock()
         self._subs: list[Subscription[T]] = []
-        self.history: deque[T] = deque(maxlen=history_len)
+        self._summarize = summarize
+        self.history: deque = deque(maxlen=history_len)
         self.latest: T | None = None
         self.published = 0
         self.closed = False
@@ -74,7 +77,7 @@ class Hub(Generic[T]):
         """Make ``value`` the latest, append it to the history and offer it to every subscriber."""
         with self._lock:
             self.latest = value
-            self.history.append(value)
+            self.history.append(value if self._summarize is None else self._summarize(value))
             self.published += 1
             subs = list(self._subs)
         for sub in subs:
@@ -87,7 +90,7 @@ class Hub(Generic[T]):
             self._subs.append(sub)
         return sub
 
-    def snapshot(self) -> list[T]:
+    def snapshot(self) -> list:
         """Return a copy of the history, oldest first."""
         with self._lock:
             return list(self.history)
