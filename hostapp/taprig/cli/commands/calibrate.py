@@ -4,9 +4,11 @@ Two ways in:
 
 - ``--from FILE`` (TOML or CSV): the readings and the counts of every step are in the file; nothing is asked.
 - guided (no ``--from``): the terminal walks the operator through the zero, each manometer point and an optional
-  end zero, asking for the readings. The counts of each step come from a counts source; for now that is a file
-  (``--counts FILE``, same formats); the runtime will pass live averaging instead (see
-  :data:`taprig.rig.CountsSource` and :func:`guided`).
+  end zero, asking for the readings. The counts of each step come from a counts file (``--counts FILE``, same
+  formats), taken in order; :func:`guided` takes any :data:`taprig.rig.CountsSource`, so a script can feed it
+  averages from a live board instead.
+
+The output must end in ``.toml`` or ``.json`` and is never overwritten unless ``--force`` is given.
 """
 
 from __future__ import annotations
@@ -89,8 +91,8 @@ def guided(plan: CalibrationInput, counts_source: CountsSource, ask: Callable[[s
            say: Callable[[str], None]) -> tuple[CalibrationInput, CountsSource]:
     """Walk the operator through zero → manometer points → end zero; return the plan with the readings typed.
 
-    ``counts_source(label)`` gives the counts of the step just set up (a file now, live averaging later); the
-    returned source maps the steps onto it in the order they were taken.
+    ``counts_source(label)`` gives the counts of the step just set up (from the counts file, or whatever source a
+    caller passes); the returned source maps the steps onto it in the order they were taken.
     """
     say(f"Channels on the manifold: {', '.join(plan.channels)}")
     ask("Wind off, every sensor port open to the room. Press Enter to take the zero. ")
