@@ -329,6 +329,10 @@ class Rig(Frozen):
         """The sensor of a channel (by name or device index)."""
         return self.sensors[self.channel(key).sensor]
 
+    def actuator_of_kind(self, kind: ActuatorKind) -> Actuator | None:
+        """The rig's first actuator of ``kind`` (the fan, the angle servo), or None when it has none."""
+        return next((a for a in self.actuators if a.kind is kind), None)
+
     def is_pressure(self, key: str | int) -> bool:
         """True if the channel's sensor measures pressure."""
         return self.sensor_of(key).quantity is Quantity.PRESSURE

@@ -215,10 +215,8 @@ class Acquisition:
     @property
     def alpha_rad(self) -> float | None:
         """The angle of attack now: the setpoint of the rig's angle actuator, if it has one."""
-        for actuator in self.rig.actuators:
-            if actuator.kind is ActuatorKind.ANGLE:
-                return self.setpoints[actuator.name]
-        return None
+        servo = self.rig.actuator_of_kind(ActuatorKind.ANGLE)
+        return None if servo is None else self.setpoints[servo.name]
 
     def event(self, kind: str, data: dict, host_ns: int | None = None) -> None:
         """Record an operator event in the session (if recording)."""

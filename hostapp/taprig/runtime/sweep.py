@@ -26,10 +26,10 @@ class SweepPoint:
 
 
 def _angle_actuator(acq: Acquisition) -> str:
-    for actuator in acq.rig.actuators:
-        if actuator.kind is ActuatorKind.ANGLE:
-            return actuator.name
-    raise AcquisitionError(f"rig {acq.rig.id!r} has no angle actuator; a sweep needs one")
+    servo = acq.rig.actuator_of_kind(ActuatorKind.ANGLE)
+    if servo is None:
+        raise AcquisitionError(f"rig {acq.rig.id!r} has no angle actuator; a sweep needs one")
+    return servo.name
 
 
 def wait_device_time(acq: Acquisition, seconds: float, timeout_s: float) -> None:

@@ -117,7 +117,7 @@ class AngleSchedule:
     """
 
     def __init__(self, rig: Rig, events: list[Entry] = ()):
-        angle = next((a for a in rig.actuators if a.kind is ActuatorKind.ANGLE), None)
+        angle = rig.actuator_of_kind(ActuatorKind.ANGLE)
         self._names = set() if angle is None else {angle.name, angle.id}
         self._default = None if angle is None else float(angle.safe)
         self._times: list[int] = []

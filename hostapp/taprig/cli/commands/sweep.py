@@ -66,7 +66,7 @@ def angles(args, rig) -> list[float]:
     from taprig.protocol import ActuatorKind
 
     _check_numbers(args)
-    servo = next((a for a in rig.actuators if a.kind is ActuatorKind.ANGLE), None)
+    servo = rig.actuator_of_kind(ActuatorKind.ANGLE)
     if servo is None:
         raise UserError(f"{args.rig}: a sweep steps the angle of attack, but this rig has no angle actuator")
     stop = math.degrees(servo.max) if args.stop_deg is None else args.stop_deg
@@ -109,7 +109,7 @@ def sweep(args, port: str, stem: str | None = None) -> int:
 
     rig = load_rig_arg(args.rig)
     targets = angles(args, rig)  # bad ranges are refused before anything opens or moves
-    fan = next((a for a in rig.actuators if a.kind is ActuatorKind.FAN), None)
+    fan = rig.actuator_of_kind(ActuatorKind.FAN)
     if fan is None:
         raise UserError(f"{args.rig}: this rig has no fan actuator for the sweep to start")
     if not fan.min <= args.fan <= fan.max:
