@@ -40,19 +40,23 @@ def load_rig_arg(path: str) -> Rig:
         raise UserError(f"{path}: cannot read the rig file ({exc.strerror or exc})") from None
 
 
-def load_calibration_arg(path: str | None, rig: Rig) -> Calibration | None:
-    """Load ``--calibration`` and check it belongs to the rig."""
+def one_line(message: str) -> str:
+    """A message on one line (a rig or calibration error lists its issues on several)."""
+    return "; ".join(part.strip() for part in str(message).splitlines() if part.strip())
+
+
+def load_calibration_arg(path: str | None, rig: Rig | None = None) -> Calibration | None:
+    """Load ``--calibration`` (None when not given) as a one-line error when it is wrong; with ``rig``, also
+    check it belongs to that rig (replay and export leave that to the session's reducer)."""
     from taprig.rig import RigError, load_calibration
 
     if path is None:
         return None
     try:
-        calibration = load_calibration(path)
+        calibration = load_calibration(path)  # an unreadable file is a RigError too
     except (RigError, ValueError) as exc:
-        raise UserError(str(exc)) from None
-    except OSError as exc:
-        raise UserError(f"{path}: cannot read the calibration file ({exc.strerror or exc})") from None
-    problems = calibration.problems_with(rig)
+        raise UserError(one_line(str(exc))) from None
+    problems = [] if rig is None else calibration.problems_with(rig)
     if problems:
         raise UserError(f"{path}: does not fit rig {rig.id!r}: " + "; ".join(problems))
     return calibration

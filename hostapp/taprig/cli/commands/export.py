@@ -12,7 +12,8 @@ import sys
 from pathlib import Path
 
 from taprig.cli import UserError
-from taprig.cli.commands.replay import load_calibration_option, progress_bar, session_errors
+from taprig.cli.commands.replay import progress_bar, session_errors
+from taprig.cli.runopts import load_calibration_arg
 
 
 def register(sub) -> None:
@@ -43,7 +44,7 @@ def _format(args) -> str:
 def run(args) -> int:
     from taprig.session.export import export_partitioned, export_session
 
-    calibration = load_calibration_option(args.calibration)
+    calibration = load_calibration_arg(args.calibration)
     if args.output is not None:
         if len(args.files) != 1:
             raise UserError("-o OUT takes one session; use --partitioned DIR for several", 2)

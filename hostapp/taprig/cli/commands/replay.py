@@ -3,8 +3,8 @@
 Paced at real time × ``--speed`` (on the recorded host times) or ``--fast`` (as fast as possible); ``--seek S``
 starts S seconds into the session; ``--calibration CAL`` re-reduces the run with another calibration. Prints one
 line per second of session time (means over that second: q, V, Cl or the venturi flow, and the counters) and a
-final summary. The helpers here (one-line errors, the progress bar, the calibration option) serve ``taprig
-export`` and ``taprig info`` too.
+final summary. The helpers here (session errors as one line, the progress bar) serve ``taprig export`` and
+``taprig info`` too.
 """
 
 from __future__ import annotations
@@ -17,6 +17,7 @@ import time
 import numpy as np
 
 from taprig.cli import UserError, finite_nonnegative, finite_positive
+from taprig.cli.runopts import load_calibration_arg, one_line
 
 
 def register(sub) -> None:
@@ -36,23 +37,6 @@ def register(sub) -> None:
 
 
 # -- helpers shared by replay, export and info -----------------------------------------------------------------
-
-def one_line(message: str) -> str:
-    """A message on one line (a rig or calibration error lists its issues on several)."""
-    return "; ".join(part.strip() for part in str(message).splitlines() if part.strip())
-
-
-def load_calibration_option(path: str | None):
-    """The ``--calibration`` file, or None; a bad or missing file is a one-line UserError."""
-    if path is None:
-        return None
-    from taprig.rig import RigError, load_calibration
-
-    try:
-        return load_calibration(path)
-    except (RigError, ValueError) as exc:
-        raise UserError(one_line(str(exc))) from None
-
 
 @contextlib.contextmanager
 def session_errors():
@@ -141,7 +125,7 @@ def _final(replay, scans: int, played_s: float, wall_s: float, calibration: str 
 def run(args) -> int:
     from taprig.session.replay import Replay
 
-    calibration = load_calibration_option(args.calibration)
+    calibration = load_calibration_arg(args.calibration)
     with session_errors():
         replay = Replay(args.file, calibration=calibration, speed=None if args.fast else args.speed,
                         seek_s=args.seek)
