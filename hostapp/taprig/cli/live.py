@@ -4,18 +4,8 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-
-from taprig.reduce import ScanFlag
+from taprig.reduce import ScanFlag, finite_mean
 from taprig.runtime.acquisition import LiveState
-
-
-def _mean(a) -> float:
-    if a is None:
-        return math.nan
-    a = np.asarray(a, dtype=float)
-    finite = a[np.isfinite(a)]
-    return float(finite.mean()) if finite.size else math.nan
 
 
 def live_line(state: LiveState) -> str:
@@ -23,23 +13,23 @@ def live_line(state: LiveState) -> str:
     b = state.block
     parts = []
     if b is not None:
-        parts.append(f"q {_mean(b.q_pa):7.1f} Pa")
+        parts.append(f"q {finite_mean(b.q_pa):7.1f} Pa")
         flowing = (b.scan_flags & ScanFlag.NO_FLOW) == 0
         if flowing.mean() > 0.5:  # speed and Re of wind-off noise (q ≈ 0, either sign) mean nothing
-            parts.append(f"V {_mean(b.v_ms[flowing]):5.1f} m/s")
-            parts.append(f"Re {_mean(b.re[flowing]):8.2e}")
+            parts.append(f"V {finite_mean(b.v_ms[flowing]):5.1f} m/s")
+            parts.append(f"Re {finite_mean(b.re[flowing]):8.2e}")
         else:
             parts.append("no flow")
-        alpha = _mean(b.alpha_rad)
+        alpha = finite_mean(b.alpha_rad)
         if math.isfinite(alpha):
             parts.append(f"α {math.degrees(alpha):5.1f}°")
-        cl = _mean(b.cl)
+        cl = finite_mean(b.cl)
         if math.isfinite(cl):
-            parts.append(f"Cl {cl:6.3f}  Cd_p {_mean(b.cd_p):6.3f}  Cm¼ {_mean(b.cm_qc):6.3f}")
+            parts.append(f"Cl {cl:6.3f}  Cd_p {finite_mean(b.cd_p):6.3f}  Cm¼ {finite_mean(b.cm_qc):6.3f}")
         if b.mass_flow_kg_s is not None:
-            parts.append(f"ṁ {_mean(b.mass_flow_kg_s) * 1000:7.3f} g/s")
+            parts.append(f"ṁ {finite_mean(b.mass_flow_kg_s) * 1000:7.3f} g/s")
         if b.cl_balance is not None:
-            parts.append(f"Cl(balance) {_mean(b.cl_balance):6.3f}")
+            parts.append(f"Cl(balance) {finite_mean(b.cl_balance):6.3f}")
     c = state.counters
     parts.append(f"frames {c.get('frames', 0)} crc {c.get('crc_errors', 0)} gaps {c.get('gaps', 0)} "
                  f"lost {c.get('scans_lost', 0)} scans")

@@ -8,7 +8,7 @@ See docs/reduction.md.
 """
 
 from taprig.reduce.ambient import Ambient, FluidProperties, ReduceOptions
-from taprig.reduce.block import ReducedBlock
+from taprig.reduce.block import ReducedBlock, finite_mean
 from taprig.reduce.flags import ChannelFlag, ScanFlag, count_flags, flag_names
 from taprig.reduce.mean import Coefficients, ReducedMean, reduce_mean
 from taprig.reduce.reducer import Reducer, ambient_for
@@ -16,5 +16,5 @@ from taprig.reduce.references import ReduceError
 
 __all__ = [
     "Ambient", "ChannelFlag", "Coefficients", "FluidProperties", "ReduceError", "ReduceOptions", "ReducedBlock",
-    "ReducedMean", "Reducer", "ScanFlag", "ambient_for", "count_flags", "flag_names", "reduce_mean",
+    "ReducedMean", "Reducer", "ScanFlag", "ambient_for", "count_flags", "finite_mean", "flag_names", "reduce_mean",
 ]

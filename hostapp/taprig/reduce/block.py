@@ -24,6 +24,20 @@ def frozen_array(value) -> np.ndarray | None:
     return arr
 
 
+def finite_mean(values) -> float:
+    """Mean of the finite entries of ``values`` (NaN marks no flow or an unusable sample); NaN when there are
+    none or ``values`` is None.
+
+    >>> finite_mean([1.0, float("nan"), 3.0]), finite_mean([float("nan")])
+    (2.0, nan)
+    """
+    if values is None:
+        return float("nan")
+    values = np.asarray(values, dtype=float)
+    finite = values[np.isfinite(values)]
+    return float(finite.mean()) if finite.size else float("nan")
+
+
 @dataclass(frozen=True, eq=False)
 class ReducedBlock:
     """One block of scans, reduced. Arrays are per scan (``scans``), per scan and channel (``scans × channels``,

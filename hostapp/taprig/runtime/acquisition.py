@@ -19,12 +19,10 @@ from dataclasses import asdict, dataclass, field
 from datetime import datetime, timezone
 from typing import Callable
 
-import numpy as np
-
 from taprig import __version__
 from taprig.link import Link, LinkError, LinkEvent, LinkEventKind
 from taprig.protocol import Description, DeviceState, Log, RawBlock, Status, channels_to_mask
-from taprig.reduce import ReducedBlock, ReducedMean, Reducer, ScanFlag
+from taprig.reduce import ReducedBlock, ReducedMean, Reducer, ScanFlag, finite_mean
 from taprig.protocol import ActuatorKind
 from taprig.rig import Calibration, Rig, build_calibration, calibration_to_text, wind_off_zero
 from taprig.runtime.hub import Hub
@@ -57,9 +55,7 @@ class LiveState:
         out = {"host_ns": self.host_ns, "scans": self.scans, "frames": self.counters.get("frames", 0)}
         if b is not None:
             out["t_ns"] = int(b.t_ns[-1])
-            for name in ("q_pa", "v_ms", "alpha_rad", "cl", "cd_p", "cm_qc"):
-                values = getattr(b, name)
-                out[name] = float(np.nanmean(values)) if np.isfinite(values).any() else math.nan  # NaN: no flow
+            out.update({name: finite_mean(getattr(b, name)) for name in ("q_pa", "v_ms", "alpha_rad", "cl", "cd_p", "cm_qc")})
         return out
 
 
@@ -248,7 +244,7 @@ class Acquisition:
         if self.device_state is DeviceState.SAFE:
             reason = ("the board's watchdog tripped and holds the actuators at their safe values (the host's "
                       "heartbeat did not reach it in time)")
-        q = float(np.nanmean(reduced.q_pa))
+        q = finite_mean(reduced.q_pa)
         raise AcquisitionError(f"no flow (q = {q:.1f} Pa): {reason}")
 
     def capture_point(self, label: str, seconds: float = 2.0) -> ReducedMean:

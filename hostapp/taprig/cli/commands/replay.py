@@ -66,13 +66,6 @@ def progress_bar(description: str, total: int):
 
 # -- the per-second summary ---------------------------------------------------------------------------------------
 
-def _finite_mean(values: np.ndarray | None) -> float:
-    if values is None:
-        return math.nan
-    finite = values[np.isfinite(values)]
-    return float(finite.mean()) if finite.size else math.nan
-
-
 class SecondLines:
     """Means over each second of session time, printed when the second is complete."""
 
@@ -101,7 +94,9 @@ class SecondLines:
         """Print the line of the current second (if it has scans)."""
         if self.second is None or not self._parts:
             return
-        means = {name: _finite_mean(np.concatenate(parts)) for name, parts in self._parts.items()}
+        from taprig.reduce import finite_mean  # here, not at import: `taprig --help` should not load the reducer
+
+        means = {name: finite_mean(np.concatenate(parts)) for name, parts in self._parts.items()}
         line = [f"t {self.second:5d} s", f"q {means['q_pa']:7.1f} Pa", f"V {means['v_ms']:5.1f} m/s"]
         if math.isfinite(means["cl"]):
             line.append(f"Cl {means['cl']:6.3f}")
