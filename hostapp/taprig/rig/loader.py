@@ -14,6 +14,8 @@ from pathlib import Path
 
 from pydantic import ValidationError
 
+from taprig.rig.checks import cross_check
+from taprig.rig.compact import tap_file_name, unroll
 from taprig.rig.errors import CrossCheckFailed, RigError, RigIssue, issues_from_validation
 from taprig.rig.model import Rig
 from taprig.rig.sensors import SENSOR_KINDS
@@ -108,48 +110,75 @@ def parse_rig(text: str, source: str = "<string>", attachments: Mapping[str, str
     Parameters
     ----------
     text : str
-        The TOML text.
+        The TOML text, in the long or the compact form (channel groups, a tap table; :mod:`taprig.rig.compact`).
     source : str
         Name of the file, used in error messages.
     attachments : mapping, optional
-        Texts of the files the rig names (``section.coordinates_file``), by the name used in the rig.
+        Texts of the files the rig names (``section.coordinates_file``, ``taps.file``), by the name used in the rig.
 
     Raises
     ------
     RigError
-        Listing every problem found, each with its key path, value and what was expected.
+        Listing every problem found, each with its key path as written in the file (down to the row of a tap
+        table or the line of a tap CSV), value and what was expected.
     """
+    return _parse(text, source, attachments, checks=True)[0]
+
+
+def parse_rig_unchecked(text: str, source: str = "<string>",
+                        attachments: Mapping[str, str] | None = None) -> tuple[Rig, RigError | None]:
+    """Like :func:`parse_rig`, but a rig whose tables are each valid is returned even when they disagree.
+
+    Returns the rig and a RigError of the cross-check problems (None when there are none), so a drawing can show
+    a rig with, say, two taps on one channel and mark the mistake. Raises RigError like :func:`parse_rig` when a
+    table itself is invalid.
+    """
+    rig, issues = _parse(text, source, attachments, checks=False)
+    return rig, (RigError(source, issues) if issues else None)
+
+
+def _parse(text: str, source: str, attachments: Mapping[str, str] | None, checks: bool) -> tuple[Rig, list[RigIssue]]:
     attachments = dict(attachments or {})
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise RigError(source, [RigIssue("", f"not valid TOML: {exc}")]) from None
-    issues = _attach_coordinates(data, attachments)
+    places, issues = unroll(data, attachments)
+    issues += _attach_coordinates(data, attachments)
     if issues:
         raise RigError(source, issues)
     try:
-        rig = Rig.model_validate(data)
+        rig = Rig.model_validate(data, context={"cross_check": checks})
     except ValidationError as exc:
-        raise RigError(source, issues_from_validation(exc, _clean_loc)) from None
+        raise RigError(source, _unique(places.issue(i) for i in issues_from_validation(exc, _clean_loc))) from None
     except CrossCheckFailed as exc:
-        raise RigError(source, exc.issues) from None
+        raise RigError(source, _unique(places.issue(i) for i in exc.issues)) from None
     rig._source_text = text
     rig._attachments = attachments
-    return rig
+    return rig, ([] if checks else _unique(places.issue(i) for i in cross_check(rig)))
+
+
+def _unique(issues) -> list[RigIssue]:
+    """Issues in order, each once (a group's shared key reports once, not once per member)."""
+    seen: dict = {}
+    for issue in issues:
+        seen.setdefault((issue.key, issue.message, repr(issue.value)), issue)
+    return list(seen.values())
 
 
 def _named_files(text: str) -> list[str]:
-    """File names a rig text refers to (only the coordinate table so far); [] if the text does not parse."""
+    """File names a rig text refers to (the coordinate table, the tap table); [] if the text does not parse."""
     try:
-        section = tomllib.loads(text).get("section", {})
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError:
         return []  # parse_rig reports the syntax error
+    section = data.get("section", {})
     name = section.get("coordinates_file") if isinstance(section, dict) else None
-    return [name] if isinstance(name, str) else []
+    return [n for n in (name, tap_file_name(data)) if isinstance(n, str)]
 
 
 def load_rig(path: str | Path) -> Rig:
-    """Read and validate a rig file (and a coordinate CSV it names, looked up beside it).
+    """Read and validate a rig file (and the coordinate or tap CSV it names, looked up beside it).
 
     Raises
     ------
