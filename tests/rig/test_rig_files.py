@@ -13,8 +13,9 @@ from taprig.cli import main
 from taprig.rig import Medium, RigError, RigKind, load_rig, parse_rig
 
 RIGS = Path(__file__).resolve().parents[2] / "rigs"
+LONG = Path(__file__).resolve().parent / "long"  # the examples in the long form (one table per channel and tap)
 EXAMPLES = sorted(RIGS.glob("*.toml"))
-BASE = (RIGS / "cambered-balance.toml").read_text(encoding="utf-8")
+BASE = (LONG / "cambered-balance.toml").read_text(encoding="utf-8")
 
 
 def test_there_are_the_promised_examples() -> None:
@@ -24,7 +25,7 @@ def test_there_are_the_promised_examples() -> None:
     assert any(len(load_rig(p).channels) == 64 for p in EXAMPLES)
 
 
-@pytest.mark.parametrize("path", EXAMPLES, ids=lambda p: p.name)
+@pytest.mark.parametrize("path", EXAMPLES + sorted(LONG.glob("*.toml")), ids=lambda p: f"{p.parent.name}/{p.name}")
 def test_example_rig_checks_clean(path: Path, capsys) -> None:
     assert main(["check", str(path)]) == 0
     out = capsys.readouterr().out
