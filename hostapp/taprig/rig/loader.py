@@ -186,7 +186,18 @@ def load_rig(path: str | Path) -> Rig:
         If the file cannot be read or does not validate; the message names the file. A
         :class:`WrongKindOfFile` if it is not text (a session file, a capture).
     """
-    path = Path(path)
+    text, attachments = _read_rig_files(Path(path))
+    return parse_rig(text, str(path), attachments)
+
+
+def load_rig_unchecked(path: str | Path) -> tuple[Rig, RigError | None]:
+    """Read a rig file as :func:`parse_rig_unchecked` does: the rig and its cross-check problems, to draw it."""
+    text, attachments = _read_rig_files(Path(path))
+    return parse_rig_unchecked(text, str(path), attachments)
+
+
+def _read_rig_files(path: Path) -> tuple[str, dict[str, str]]:
+    """The rig file's text and the texts of the files it names, found beside it (missing ones left out)."""
     text = read_text_file(path, "rig file", "TOML")
     attachments = {}
     for name in _named_files(text):
@@ -194,4 +205,4 @@ def load_rig(path: str | Path) -> Rig:
             attachments[name] = (path.parent / name).read_text(encoding="utf-8")
         except (OSError, UnicodeDecodeError):
             continue  # parse_rig reports the missing attachment with its key
-    return parse_rig(text, str(path), attachments)
+    return text, attachments

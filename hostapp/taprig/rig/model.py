@@ -160,6 +160,7 @@ class Geometry(Frozen):
     tunnel_height: Length | None = Field(None, alias="tunnel_height_mm")
     tunnel_width: Length | None = Field(None, alias="tunnel_width_mm")
     diameter: Length | None = Field(None, alias="diameter_mm")
+    pivot_x_c: float | None = Field(None, ge=0.0, le=1.0, description="angle-of-attack pivot from the leading edge [-]")
     area_table: AreaTable | None = None
 
 

@@ -1,17 +1,29 @@
-"""``taprig check RIG...``: validate rig files and print what each rig is and can compute, or every error."""
+"""``taprig check RIG...``: validate rig files and print what each rig is and can compute, or every error.
+
+``--draw FILE.png|FILE.svg`` also draws the rig (:mod:`taprig.cli.rig_drawing`), even one whose tables disagree,
+with the suspicious things marked; the rig is still refused (exit 1) when it has errors.
+"""
 
 from __future__ import annotations
 
 import math
 
-from taprig.cli import UserError
+from pathlib import Path
+
+from taprig.cli import UserError, bounded
 from taprig.rig import Rig, RigError, load_rig
+from taprig.rig.loader import load_rig_unchecked
+from taprig.rig.picture import rig_picture
 
 
 def register(sub) -> None:
     p = sub.add_parser("check", help="validate rig files; print a summary or every error (exit 1 if any is invalid)")
     p.add_argument("rigs", nargs="+", metavar="RIG", help="rig file(s) (TOML)")
     p.add_argument("--quiet", "-q", action="store_true", help="print only errors")
+    p.add_argument("--draw", metavar="FILE", help="draw the rig to FILE (.png or .svg): the model to scale in its "
+                                                  "walls, every tap with its channel, what looks wrong marked")
+    p.add_argument("--alpha-deg", type=bounded(-90, 90, "deg"), metavar="DEG",
+                   help="with --draw: the angle of attack to draw an airfoil at (default 0)")
     p.set_defaults(func=run)
 
 
@@ -95,10 +107,44 @@ def summary(rig: Rig) -> str:
         unit = "deg" if a.unit == "rad" else a.unit
         lines.append(f"actuator {a.id} {a.name!r} ({a.kind.name.lower()}): {lo:g} .. {hi:g} {unit}, safe {safe:g}")
     lines.append("can compute: " + (", ".join(rig.capabilities()) or "raw pressures only"))
+    lines += [f"look at: {p.text}" for p in rig_picture(rig).problems]
     return "\n".join(lines)
 
 
+def _draw(args) -> int:
+    from taprig.cli.rig_drawing import SUFFIXES, draw_rig
+
+    if len(args.rigs) != 1:
+        raise UserError("--draw draws one rig; give one RIG", 2)
+    out = Path(args.draw)
+    if out.suffix.lower() not in SUFFIXES:
+        raise UserError(f"--draw {out}: can draw to .png or .svg", 2)
+    if out.is_dir():
+        raise UserError(f"--draw {out} is a directory; give a file name such as {out / 'rig.png'}")
+    rig, problems = load_rig_unchecked(args.rigs[0])  # a RigError here (a table itself invalid) is not drawable
+    picture = rig_picture(rig, math.radians(args.alpha_deg or 0.0))
+    try:
+        draw_rig(picture, out)
+    except OSError as exc:
+        raise UserError(f"--draw {out}: cannot write: {exc.strerror or exc}") from None
+    if problems is None and not args.quiet:
+        print(summary(rig))
+        print()
+    marked = sum(bool(t.problems) for t in picture.taps)
+    print(f"drew {out}: {len(picture.taps)} taps, {marked} marked, {len(picture.problems)} thing(s) to look at")
+    if problems is not None:
+        raise UserError(str(problems))
+    return 0
+
+
 def run(args) -> int:
+    if args.alpha_deg is not None and not args.draw:
+        raise UserError("--alpha-deg needs --draw", 2)
+    if args.draw:
+        try:
+            return _draw(args)
+        except RigError as exc:
+            raise UserError(str(exc)) from None
     failures = []
     for path in args.rigs:
         try:
