@@ -17,6 +17,7 @@ from taprig.physics.flow import (
     mach_number,
     pitot_dynamic_pressure,
     reynolds_number,
+    stagnation_speed,
 )
 
 SEA_LEVEL = ATMOSPHERE_1976(0.0)  # fluids' 1976 standard atmosphere
@@ -107,3 +108,27 @@ def test_block_shapes_broadcast():
 def test_bad_inputs_raise(call, message):
     with pytest.raises(ValueError, match=message):
         call()
+
+
+@pytest.mark.parametrize("speed", [10.0, 30.0, 65.0, 120.0])
+def test_stagnation_speed_matches_coolprop_isentropic_expansion(speed):
+    # Independent computation: CoolProp's real-gas Air expanded at constant entropy from rest (T0 = 288.15 K,
+    # p0 = 101325 Pa) to the static pressure p where V = √(2 (h0 − h)) (energy equation, Anderson §8.4).
+    from CoolProp.CoolProp import PropsSI
+    from scipy.optimize import brentq
+
+    t0, p0 = 288.15, 101325.0
+    h0, s0, rho0 = (PropsSI(k, "T", t0, "P", p0, "Air") for k in ("H", "S", "D"))
+    p = brentq(lambda p: np.sqrt(2.0 * (h0 - PropsSI("H", "P", p, "S", s0, "Air"))) - speed, 30000.0, p0 - 1e-3,
+               xtol=1e-9)
+    qc = p0 - p
+    assert_allclose(stagnation_speed(qc, p, p0 / rho0), speed, rtol=2e-5)  # ideal gas, γ = 1.4 vs real-gas air
+    # Bernoulli with the density at rest is M²/8 low (0.44 % at Mach 0.19, the issue's figure)
+    mach = speed / float(np.sqrt(1.4 * p / (rho0 * (p / p0) ** (1 / 1.4))))
+    assert_allclose(1.0 - incompressible_speed(qc, rho0) / speed, mach**2 / 8.0, rtol=0.05)
+
+
+def test_stagnation_speed_keeps_the_sign_of_noise_about_zero():
+    v = stagnation_speed(np.array([-0.5, 0.0, 0.5]), 101325.0, 101325.0 / 1.2)
+    assert v[0] == -v[2] and v[1] == 0.0 and v[2] > 0.0
+    assert_allclose(v[2], np.sqrt(2 * 0.5 / 1.2), rtol=1e-5)  # Bernoulli in the limit q → 0

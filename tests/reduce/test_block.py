@@ -54,6 +54,7 @@ sensor = "ratio"
 measures = "gauge"
 [reference]
 pitot = "dq"
+static_source = "room"
 [geometry]
 chord_mm = 100.0
 span_mm = 300.0
@@ -91,16 +92,23 @@ def _block(counts, channels=(0, 1, 2, 3)):
 def test_hand_worked_counts_to_cp(tiny):
     # Ratiometric transfer V = Vs (a p + b), counts = V / Vref · 2^12 (common practice, the sensor's definition):
     # q = 250 Pa → 4096 (0.00016·250 + 0.5) = 2211.84 counts; taps at −300, +125, 0 Pa → 1851.392, 2129.92, 2048.
-    # Cp = (p − p∞)/q with p∞ = the room (no static channel), so Cp = −1.2, 0.5, 0 (definition, common practice).
+    # Cp = (p − p∞)/q with p∞ = the room (an open jet, as the rig states), so Cp = −1.2, 0.5, 0 (definition,
+    # common practice).
     rb = tiny.reduce(_block([2211.84, 1851.392, 2129.92, 2048.0]))
     np.testing.assert_allclose(rb.q_pa, [250.0], rtol=1e-12)
     np.testing.assert_allclose(rb.p_pa[0], [250.0, -300.0, 125.0, 0.0], atol=1e-9)
     by_tap = dict(zip(rb.tap_names, rb.cp[0]))
     assert by_tap == pytest.approx({"U1": -1.2, "L1": 0.5, "U2": 0.0}, abs=1e-12)
-    # V = √(2q/ρ) with ρ of the default ambient (Bernoulli, common practice).
-    np.testing.assert_allclose(rb.v_ms, np.sqrt(2 * 250.0 / tiny.fluid.density), rtol=1e-12)
+    # V² = 2γ/(γ−1)·(p0/ρ0)·[1 − (p∞/p0)^((γ−1)/γ)], p0 = p∞ + q, stagnation state = the room (Anderson,
+    # Fundamentals of Aerodynamics, 5th ed., eqs. 8.30 and 7.32), written out with γ = 1.4; Bernoulli √(2q/ρ) with
+    # the room's density is 0.08 % off at 20 m/s (series: (9/28)·q/p).
+    p_a, rho = tiny.ambient.pressure, tiny.fluid.density
+    expected = np.sqrt(7.0 * p_a / rho * (1.0 - (p_a / (p_a + 250.0)) ** (1.0 / 3.5)))
+    np.testing.assert_allclose(rb.v_ms, expected, rtol=1e-12)
+    np.testing.assert_allclose(rb.v_ms, np.sqrt(2 * 250.0 / rho), rtol=1e-3)
     assert rb.scan_flags[0] == 0
     assert "room pressure" in " ".join(tiny.assumptions)
+    assert "open jet" in " ".join(tiny.assumptions)
 
 
 def test_plain_integral_matches_the_trapezoid_of_the_taps(tiny):

@@ -127,9 +127,29 @@ def test_calibrate_flags_out_of_tolerance_and_strict_exits_1(tmp_path: Path, cap
     text = _toml_input().replace("reading_mm = 160.0", "reading_mm = 100.0")  # one point misread → bad linearity
     src = tmp_path / "points.toml"
     src.write_text(text, encoding="utf-8")
-    rc = main(["calibrate", str(RIGS / "cambered-balance.toml"), "--from", str(src), "-o", str(tmp_path / "c.toml"), "--strict"])
+    out = tmp_path / "c.toml"
+    # a calibration failing its own checks is not written unless the user forces it
+    assert main(["calibrate", str(RIGS / "cambered-balance.toml"), "--from", str(src), "-o", str(out)]) == 1
+    err = capsys.readouterr().err
+    assert "fails its own checks" in err and "--accept-failed" in err and "nothing was written" in err
+    assert not out.exists()
+    rc = main(["calibrate", str(RIGS / "cambered-balance.toml"), "--from", str(src), "-o", str(out), "--strict",
+               "--accept-failed"])
     assert rc == 1
     assert "out of tolerance" in capsys.readouterr().out
+    # forced and written: using it is refused unless forced again, and then every reduced value is marked
+    from taprig.cli.runopts import load_calibration_arg
+    from taprig.cli import UserError
+    from taprig.reduce import Reducer
+    from taprig.rig import load_rig
+
+    rig = load_rig(RIGS / "cambered-balance.toml")
+    with pytest.raises(UserError, match="failed its own checks.*--accept-failed-calibration"):
+        load_calibration_arg(str(out), rig)
+    reducer = Reducer(rig, load_calibration_arg(str(out), rig, accept_failed=True))
+    assert "FAILED ITS OWN CHECKS" in reducer.calibration_warning and "u1" in reducer.calibration_warning
+    assert reducer.calibration_warning in reducer.assumptions
+    assert reducer.assumption_data()["calibration"]["forced"] is True
 
 
 @pytest.mark.parametrize(

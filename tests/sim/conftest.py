@@ -87,3 +87,13 @@ def host(rigs):
         return ScriptedHost(SimulatedDevice(rigs(stem), replace(base, **options)))
 
     return make
+
+
+@pytest.fixture
+def host_of():
+    """``host_of(rig, **options)``: a ScriptedHost on a fresh device of a Rig object (options over IDEAL's)."""
+
+    def make(rig, base: SimOptions = IDEAL, **options) -> ScriptedHost:
+        return ScriptedHost(SimulatedDevice(rig, replace(base, **options)))
+
+    return make

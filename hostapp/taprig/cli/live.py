@@ -26,10 +26,14 @@ def live_line(state: LiveState) -> str:
         cl = finite_mean(b.cl)
         if math.isfinite(cl):
             parts.append(f"Cl {cl:6.3f}  Cd_p {finite_mean(b.cd_p):6.3f}  Cm¼ {finite_mean(b.cm_qc):6.3f}")
-        if b.mass_flow_kg_s is not None:
+        if b.mass_flow_kg_s is not None and math.isfinite(finite_mean(b.mass_flow_kg_s)):
             parts.append(f"ṁ {finite_mean(b.mass_flow_kg_s) * 1000:7.3f} g/s")
-        if b.cl_balance is not None:
+        if b.cl_balance is not None and math.isfinite(finite_mean(b.cl_balance)):
             parts.append(f"Cl(balance) {finite_mean(b.cl_balance):6.3f}")
+        if b.reference_note:
+            parts.append(b.reference_note)
+        if b.calibration_warning:
+            parts.append("CALIBRATION FAILED ITS CHECKS")
     c = state.counters
     parts.append(f"frames {c.get('frames', 0)} crc {c.get('crc_errors', 0)} gaps {c.get('gaps', 0)} "
                  f"lost {c.get('scans_lost', 0)} scans")

@@ -22,10 +22,17 @@ def add_rig_options(p: argparse.ArgumentParser, rig_required: bool = True) -> No
     """Add ``--rig``, ``--calibration`` and the ambient options."""
     p.add_argument("--rig", required=rig_required, metavar="RIG", help="rig file (TOML), see docs/rig-file.md")
     p.add_argument("--calibration", metavar="CAL", help="calibration file from `taprig calibrate`")
+    add_accept_failed_option(p)
     p.add_argument("--pressure-hpa", type=float, metavar="HPA", help="room barometric pressure [hPa]")
     p.add_argument("--temperature-c", type=float, metavar="C",
                    help="air temperature (the water temperature on a water rig) [°C]")
     p.add_argument("--humidity-pct", type=float, metavar="PCT", help="relative humidity of the room air [%%]")
+
+
+def add_accept_failed_option(p: argparse.ArgumentParser) -> None:
+    """``--accept-failed-calibration``: use a calibration that failed its own checks (every output is marked)."""
+    p.add_argument("--accept-failed-calibration", action="store_true",
+                   help="use a calibration that failed its own checks; every output then says so")
 
 
 def load_rig_arg(path: str) -> Rig:
@@ -45,9 +52,11 @@ def one_line(message: str) -> str:
     return "; ".join(part.strip() for part in str(message).splitlines() if part.strip())
 
 
-def load_calibration_arg(path: str | None, rig: Rig | None = None) -> Calibration | None:
+def load_calibration_arg(path: str | None, rig: Rig | None = None, accept_failed: bool = False) -> Calibration | None:
     """Load ``--calibration`` (None when not given) as a one-line error when it is wrong; with ``rig``, also
-    check it belongs to that rig (replay and export leave that to the session's reducer)."""
+    check it belongs to that rig (replay and export leave that to the session's reducer). A calibration whose own
+    checks failed (a channel flagged out of tolerance) is refused unless ``accept_failed``; the reducer then marks
+    every output."""
     from taprig.rig import RigError, load_calibration
 
     if path is None:
@@ -59,6 +68,10 @@ def load_calibration_arg(path: str | None, rig: Rig | None = None) -> Calibratio
     problems = [] if rig is None else calibration.problems_with(rig)
     if problems:
         raise UserError(f"{path}: does not fit rig {rig.id!r}: " + "; ".join(problems))
+    if calibration.flagged and not accept_failed:
+        found = "; ".join(f"{name}: {', '.join(flags)}" for name, flags in calibration.flagged.items())
+        raise UserError(f"{path}: the calibration failed its own checks ({found}); redo it, or pass "
+                        "--accept-failed-calibration to use it anyway (every output is then marked)")
     return calibration
 
 

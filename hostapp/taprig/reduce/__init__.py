@@ -11,10 +11,11 @@ from taprig.reduce.ambient import Ambient, FluidProperties, ReduceOptions
 from taprig.reduce.block import ReducedBlock, finite_mean
 from taprig.reduce.flags import ChannelFlag, ScanFlag, count_flags, flag_names
 from taprig.reduce.mean import Coefficients, ReducedMean, reduce_mean
-from taprig.reduce.reducer import Reducer, ambient_for
+from taprig.reduce.reducer import Reducer, ambient_for, stated_assumptions
 from taprig.reduce.references import ReduceError
 
 __all__ = [
     "Ambient", "ChannelFlag", "Coefficients", "FluidProperties", "ReduceError", "ReduceOptions", "ReducedBlock",
     "ReducedMean", "Reducer", "ScanFlag", "ambient_for", "count_flags", "finite_mean", "flag_names", "reduce_mean",
+    "stated_assumptions",
 ]

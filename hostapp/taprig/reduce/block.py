@@ -96,6 +96,12 @@ class ReducedBlock:
     mass_flow_kg_s: np.ndarray | None = None
     cp_ideal: np.ndarray | None = None
     force_channels: tuple[int, ...] = ()
+    #: What the numbers assume (the freestream static's source, the calibration's state …), for people.
+    assumptions: tuple[str, ...] = ()
+    #: A few words on the freestream static pressure in force, for a live line (``p∞ = room − 1.1q (suction)``).
+    reference_note: str = ""
+    #: "" when the calibration passed its own checks (or none is used); else the warning every output must show.
+    calibration_warning: str = ""
 
     def __post_init__(self) -> None:
         for f in fields(self):

@@ -82,6 +82,8 @@ class RigLayout:
     balance_lift: int | None
     span: float | None
     assumptions: tuple[str, ...]
+    static_sensitivity: np.ndarray | None = None  # ∂Cp_i/∂f per tap when p∞ = room − f q (else None)
+    static_factor_u: float = 0.0  # u(f) [-]
 
 
 def _inlet_first(rig: Rig, layout) -> tuple[tuple[str, ...], np.ndarray, np.ndarray]:
@@ -121,8 +123,20 @@ def rig_layout(rig: Rig, ambient_pressure: float) -> RigLayout:
     return RigLayout(
         rig, names, channels, forms.taps, forms.q, forms.static_absolute, contour, venturi,
         _reference_length(rig, venturi), rig.index_of(lift) if lift else None,
-        float(span) if span is not None else None, forms.assumptions,
+        float(span) if span is not None else None, forms.assumptions + _flow_assumptions(rig),
+        np.asarray(forms.static_sensitivity, dtype=float) if forms.static_sensitivity else None,
+        forms.static_factor_u,
     )
+
+
+def _flow_assumptions(rig: Rig) -> tuple[str, ...]:
+    """How the speed follows from q (the isentropic relation for a gas, Bernoulli for a liquid)."""
+    from taprig.rig import Medium
+
+    if rig.fluid.medium is Medium.WATER:
+        return ("speed from q by Bernoulli (incompressible liquid)",)
+    return ("speed from q by the isentropic relation; the run's temperature is the stagnation temperature "
+            "(air at rest in the room or settling chamber)",)
 
 
 @dataclass(frozen=True, eq=False)

@@ -93,6 +93,11 @@ class ReducedMean:
     mass_flow_kg_s: float | None = None
     cp_ideal: np.ndarray | None = None
     scan_flag_counts: dict = field(default_factory=dict)
+    assumptions: tuple[str, ...] = ()
+    reference_note: str = ""
+    calibration_warning: str = ""
+    #: How u_cp and the coefficients' uncertainties were propagated ("first order (GUM)", or a Monte Carlo).
+    uncertainty_method: str = "first order (GUM, JCGM 100:2008 §5)"
 
     def __post_init__(self) -> None:
         for name in ("p_pa", "u_p_pa", "cp", "u_cp", "cov_cp", "cp_ideal"):
@@ -177,6 +182,15 @@ def wall_corrected(reducer, coeffs: Coefficients, alpha: float) -> tuple[Coeffic
     return corrected, wc
 
 
+def _static_factor_covariance(layout) -> np.ndarray | float:
+    """Cp covariance from the stated static factor f (p∞ = room − f q): u²(f) s sᵀ with s_i = ∂Cp_i/∂f, one error
+    shared by every room-referred tap (GUM §5.2.2); 0 when a channel measures the static."""
+    s = layout.static_sensitivity
+    if s is None or layout.static_factor_u == 0.0:
+        return 0.0
+    return layout.static_factor_u**2 * np.outer(s, s)
+
+
 def _dq_dp(reducer, plan: ColumnPlan, delta: np.ndarray, q: float) -> np.ndarray:
     """∂q/∂p per column: the q form's coefficients, or for a venturi q ∝ Δp (inlet − throat) at fixed ε."""
     if plan.q is not None:
@@ -212,11 +226,13 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
     cp, q, tap_ok, mean_flags = reducer.pressure_coefficients(plan, p_mean[None, :], column_bad[None, :])
     cp, q, tap_ok = cp[0], float(q[0]), tap_ok[0]
     flags |= int(mean_flags[0])
-    v, re, mach = (float(x[0]) for x in reducer.flow(np.array([q])))
+    p_inf = plan.static_absolute.evaluate(p_mean[None, :])[:, 0]
+    v, re, mach = (float(x[0]) for x in reducer.flow(np.array([q]), p_inf))
     usable_q = np.isfinite(cp).any()
     if usable_q:
         dq = _dq_dp(reducer, plan, plan.taps.evaluate(p_mean[None, :])[0], q)
         cov_cp = propagate_covariance(cp_jacobian(plan, cp, q, dq), cov_p)
+        cov_cp += _static_factor_covariance(reducer.layout)
         cov_cp[~tap_ok, :] = cov_cp[:, ~tap_ok] = np.nan
         u_q = float(np.sqrt(propagate_covariance(dq[None, :], cov_p)[0, 0]))
     else:
@@ -241,6 +257,8 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
         mass_flow_kg_s=float(mass) if mass is not None else None,
         cp_ideal=reducer.layout.venturi.cp_ideal if reducer.layout.venturi is not None else None,
         scan_flag_counts=count_flags(scan_flags, ScanFlag),
+        assumptions=reducer.assumptions, reference_note=reducer.reference_note,
+        calibration_warning=reducer.calibration_warning,
     )
 
 

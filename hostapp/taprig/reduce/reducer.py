@@ -17,13 +17,14 @@ from taprig.physics.flow import (
     compressibility_flag,
     dynamic_pressure,
     incompressible_speed,
-    mach_number,
+    isentropic_mach,
     reynolds_number,
+    stagnation_speed,
 )
 from taprig.physics.integration import ShapeFitIntegrator
 from taprig.physics.venturi import beta_ratio, venturi_expansibility, venturi_mass_flow
 from taprig.protocol import RawBlock
-from taprig.rig import Calibration, Medium, Rig
+from taprig.rig import Calibration, Medium, Rig, RigKind
 from taprig.reduce.ambient import Ambient, ReduceOptions
 from taprig.reduce.block import ReducedBlock
 from taprig.reduce.flags import CHANNEL_FLAG_DTYPE, SCAN_FLAG_DTYPE, ChannelFlag, ScanFlag
@@ -105,8 +106,42 @@ class Reducer:
 
     @property
     def assumptions(self) -> tuple[str, ...]:
-        """Sentences stating what the reduction assumes for this rig (for reports and ``taprig check``)."""
-        return self.layout.assumptions
+        """Sentences stating what the reduction assumes for this rig and calibration (for every output that shows
+        Cp or a coefficient: ``taprig check``, info, exports, the dashboard and the report)."""
+        return _assumptions(self.layout.assumptions, self.calibration)
+
+    @property
+    def reference_note(self) -> str:
+        """A few words on the freestream static in force, for a live line."""
+        return self.rig.reference.static_short() if self.rig.kind is not RigKind.VENTURI else \
+            "p∞ = inlet station"
+
+    @property
+    def calibration_warning(self) -> str:
+        """Why the calibration in force fails its own checks ("" when it passes or none is used)."""
+        return calibration_warning(self.calibration)
+
+    def assumption_data(self) -> dict:
+        """The assumptions as data for a dashboard or a report: ``{"sentences": [...], "static": {...},
+        "calibration": {...}}`` (plain types only)."""
+        ref = self.rig.reference
+        offset = ref.static_offset()
+        static = {"source": "channel" if ref.static is not None else
+                  (ref.static_source.value if ref.static_source is not None else
+                   ("inlet station" if self.rig.kind is RigKind.VENTURI else None)),
+                  "channel": ref.static, "factor": offset[0] if offset else None,
+                  "factor_u": offset[1] if offset else None, "short": self.reference_note}
+        cal = self.calibration
+        return {
+            "sentences": list(self.assumptions),
+            "static": static,
+            "calibration": {
+                "used": cal is not None, "date": cal.date.isoformat() if cal is not None else None,
+                "flagged_channels": dict(cal.flagged) if cal is not None else {},
+                "forced": bool(self.calibration_warning), "warning": self.calibration_warning,
+            },
+            "speed": "isentropic" if np.isfinite(self.fluid.speed_of_sound) else "bernoulli",
+        }
 
     def plan(self, channels: tuple[int, ...]) -> ColumnPlan:
         """The precomputed arrays for a channel set (built on first use); ReduceError if the rig cannot use it."""
@@ -145,7 +180,7 @@ class Reducer:
         cp, q, tap_ok, extra = self.pressure_coefficients(plan, p, unusable)
         scan_flags |= extra
         alpha = self.alpha_array(alpha_rad, counts.shape[0])
-        v, re, mach = self.flow(q)
+        v, re, mach = self.flow(q, plan.static_absolute.evaluate(p)[:, 0])
         scan_flags |= np.where(compressibility_flag(mach), ScanFlag.COMPRESSIBLE, 0).astype(SCAN_FLAG_DTYPE)
         cl = cd = cm = np.full(counts.shape[0], np.nan)
         if self.layout.contour is not None:
@@ -160,7 +195,8 @@ class Reducer:
             cl=cl, cd_p=cd, cm_qc=cm, scan_flags=scan_flags, channel_flags=channel_flags, lift_n=lift,
             cl_balance=cl_balance, mass_flow_kg_s=mass_flow,
             cp_ideal=self.layout.venturi.cp_ideal if self.layout.venturi is not None else None,
-            force_channels=plan.force_channels,
+            force_channels=plan.force_channels, assumptions=self.assumptions, reference_note=self.reference_note,
+            calibration_warning=self.calibration_warning,
         )
 
     # -- steps (public so reduce_mean and the benchmark reuse exactly these) ------------------------------------
@@ -226,13 +262,27 @@ class Reducer:
         differential = -cp[:, self.layout.venturi.throat] * q
         return self._mass_flow(differential, plan, p)
 
-    def flow(self, q: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Speed [m/s], Reynolds number on the reference length [-] and Mach number [-] from q [Pa]."""
+    def flow(self, q: np.ndarray, p_static: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Speed [m/s], Reynolds number on the reference length [-] and Mach number [-] from q = p0 − p∞ [Pa].
+
+        Air: the isentropic relation from the stagnation state (the run's temperature and the room's pressure
+        over its density, :func:`~taprig.physics.flow.stagnation_speed`) at the absolute freestream static
+        ``p_static`` [Pa] (the room's pressure when not given or not finite); Mach from q/p∞. Water: Bernoulli.
+        """
         fluid = self.fluid
-        v = incompressible_speed(q, fluid.density)
+        q = np.asarray(q, dtype=float)
         length = self.layout.reference_length
+        if np.isfinite(fluid.speed_of_sound):
+            p_inf = np.full(q.shape, self.ambient.pressure) if p_static is None else np.asarray(p_static, dtype=float)
+            p_inf = np.where(np.isfinite(p_inf) & (p_inf > 0.0), p_inf, self.ambient.pressure)
+            v = stagnation_speed(q, p_inf, self.ambient.pressure / fluid.density)
+            with np.errstate(invalid="ignore"):
+                mach = np.sign(q) * isentropic_mach(np.abs(np.nan_to_num(q)), p_inf)
+            mach = np.where(np.isfinite(q), mach, np.nan)
+        else:
+            v = incompressible_speed(q, fluid.density)
+            mach = np.full_like(v, np.nan)
         re = reynolds_number(fluid.density, v, length, fluid.viscosity) if np.isfinite(length) else np.full_like(v, np.nan)
-        mach = mach_number(v, fluid.speed_of_sound) if np.isfinite(fluid.speed_of_sound) else np.full_like(v, np.nan)
         return v, re, mach
 
     def balance(self, plan: ColumnPlan, p: np.ndarray, q: np.ndarray):
@@ -245,6 +295,33 @@ class Reducer:
             return lift, np.full_like(lift, np.nan)
         with np.errstate(invalid="ignore", divide="ignore"):
             return lift, lift / (np.where(q >= plan.q_threshold, q, np.nan) * chord * span)
+
+
+def _assumptions(layout_assumptions: tuple[str, ...], calibration: Calibration | None) -> tuple[str, ...]:
+    warning = calibration_warning(calibration)
+    return layout_assumptions + (calibration_statement(calibration),) + ((warning,) if warning else ())
+
+
+def stated_assumptions(rig: Rig, calibration: Calibration | None = None) -> tuple[str, ...]:
+    """:attr:`Reducer.assumptions` of ``rig`` and ``calibration`` without building a reducer (no fits); ReduceError
+    when the rig cannot be reduced (its freestream static unstated)."""
+    return _assumptions(rig_layout(rig, 101325.0).assumptions, calibration)
+
+
+def calibration_statement(calibration: Calibration | None) -> str:
+    """One sentence on the calibration in force."""
+    if calibration is None:
+        return "no calibration: the sensors' nominal transfer functions and datasheet uncertainties"
+    levels = sorted({c.level.name.lower() for c in calibration.channels.values()})
+    return f"calibration of {calibration.date:%Y-%m-%d %H:%M} ({', '.join(levels) or 'no channels'})"
+
+
+def calibration_warning(calibration: Calibration | None) -> str:
+    """"" for a calibration that passes its own checks; else a warning naming the failed channels."""
+    if calibration is None or not calibration.flagged:
+        return ""
+    names = ", ".join(calibration.flagged)
+    return f"CALIBRATION FAILED ITS OWN CHECKS (used because forced): {names}"
 
 
 def _scan_flags_from_channels(channel_flags: np.ndarray) -> np.ndarray:

@@ -9,7 +9,11 @@ whole of what the reducer needs: it evaluates them per scan with array gathers, 
 coefficients ∂(p − p∞)/∂p_channel of the uncertainty budget (JCGM 100:2008 §5.1.3).
 
 When no channel measures the freestream static (a pitot differential and room-referenced taps, the common bench
-arrangement), the freestream static is taken as the room pressure; :attr:`ReferenceForms.assumptions` says so.
+arrangement), the rig must say where it comes from (``[reference] static_source``): an open-circuit suction tunnel
+(p∞ = room − (1 + K) q with the inlet loss K), a tunnel calibration factor measured with the empty tunnel
+(p∞ = room − f q), or an open jet (p∞ = room). There is no silent default: an unstated static is an error.
+:attr:`ReferenceForms.assumptions` states the choice; the factor's uncertainty enters the budget through
+:attr:`ReferenceForms.static_sensitivity` (∂Cp_i/∂f).
 """
 
 from __future__ import annotations
@@ -62,6 +66,8 @@ class ReferenceForms:
     q: Form | None
     static_absolute: Form
     assumptions: tuple[str, ...]
+    static_sensitivity: tuple[float, ...] = ()  # ∂Cp_i/∂f per tap when p∞ = room − f q (else empty)
+    static_factor_u: float = 0.0  # u(f) [-]
 
 
 def _definitions(rig: Rig, tap_channels: dict[str, str]) -> tuple[dict[str, Form], list[str]]:
@@ -123,10 +129,27 @@ def reference_forms(rig: Rig, tap_names: tuple[str, ...], ambient_pressure: floa
     tap_channels = {t.name: t.channel for t in rig.taps}
     defs, notes = _definitions(rig, tap_channels)
     raw = [_add(_port(rig, tap_channels[name]), {STATIC: 1.0}, -1.0) for name in tap_names]
+    sensitivity: tuple[float, ...] = ()
+    u_factor = 0.0
     if STATIC not in defs and any(STATIC in _resolve(form, defs) for form in raw):
-        # Room-referenced taps and no static channel: the bench arrangement of a test section open to the room.
-        defs[STATIC] = {ATM: 1.0}
-        notes.append("no channel measures the freestream static pressure: it is taken as the room pressure")
+        # Room-referenced taps and no static channel: the rig states how the static lies below the room.
+        offset = rig.reference.static_offset()
+        if offset is None:
+            raise ReduceError(
+                f"rig {rig.id!r}: no channel measures the freestream static pressure and the rig does not say "
+                "where it comes from; set [reference] static_source (suction, factor or room, docs/rig-file.md)")
+        factor, u_factor = offset
+        q_raw = _resolve({TOTAL: rig.reference.pitot_coefficient, STATIC: -rig.reference.pitot_coefficient}, defs) \
+            if TOTAL in defs else {STATIC: 1.0}
+        if STATIC in q_raw and factor != 0.0:
+            raise ReduceError(f"rig {rig.id!r}: static_source {rig.reference.static_source.value!r} needs q from a "
+                              "pitot differential (reference.pitot)")
+        defs[STATIC] = _add({ATM: 1.0}, {k: v for k, v in q_raw.items() if k != STATIC}, -factor) if factor else \
+            {ATM: 1.0}
+        sensitivity = tuple(-float(_resolve(form, {k: v for k, v in defs.items() if k != STATIC}).get(STATIC, 0.0))
+                            for form in raw)
+    if rig.reference.static is not None or sensitivity:
+        notes.insert(0, rig.reference.static_statement())
     taps = []
     for name, form in zip(tap_names, raw):
         taps.append(_channels_only(_resolve(form, defs), f"tap {name!r}", rig))
@@ -138,4 +161,5 @@ def reference_forms(rig: Rig, tap_names: tuple[str, ...], ambient_pressure: floa
     absolute_defs.setdefault(ATM, {ONE: ambient_pressure})  # the room, when no barometer channel reads it
     absolute_defs.setdefault(STATIC, {ATM: 1.0})
     static_abs = _resolve({STATIC: 1.0}, absolute_defs)
-    return ReferenceForms(tuple(taps), q, _channels_only(static_abs, "the freestream static", rig), tuple(notes))
+    return ReferenceForms(tuple(taps), q, _channels_only(static_abs, "the freestream static", rig), tuple(notes),
+                          sensitivity, float(u_factor) if sensitivity else 0.0)

@@ -102,6 +102,7 @@ from taprig.rig.model import (
     Rig,
     RigKind,
     Section,
+    StaticSource,
     Surface,
     Tap,
 )
@@ -121,7 +122,7 @@ __all__ = [
     "ChannelCalibration", "Conversion", "Coordinates", "CountsSource", "DifferentialSensor", "DigitalBridgeSensor",
     "DriftResult", "Fluid", "Geometry", "LinearSensor", "Link", "Manometer", "ManometerReading", "Measures", "Medium",
     "Quantity", "RatiometricSensor", "Reference", "Rig", "RigError", "RigIssue", "RigKind", "Section", "Sensor",
-    "SensorBase", "SpanFit", "Surface", "Tap", "TapLayout", "ZeroResult", "apply_calibration", "build_calibration",
+    "SensorBase", "SpanFit", "StaticSource", "Surface", "Tap", "TapLayout", "ZeroResult", "apply_calibration", "build_calibration",
     "calibrate", "calibration_from_text", "calibration_to_text", "capabilities", "compare_with_description",
     "conversion_for", "cross_check", "drift_check", "fit_span", "load_calibration", "load_rig", "manometer_pressure",
     "parse_coordinates_csv", "parse_input_csv", "parse_input_toml", "parse_rig", "parse_rig_unchecked", "tap_layout", "wind_off_zero",

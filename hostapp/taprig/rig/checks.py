@@ -104,12 +104,69 @@ def _check_references(rig: Rig) -> list[RigIssue]:
             issues.append(RigIssue("reference.atmosphere", "the atmosphere channel must be an absolute channel", ref.atmosphere))
     if ref.inlet is not None and ref.inlet not in {t.name for t in rig.taps}:
         issues.append(RigIssue("reference.inlet", "no tap of that name", ref.inlet))
+    issues += _check_static_source(rig)
     needs_q = rig.kind in (RigKind.AIRFOIL, RigKind.CYLINDER, RigKind.BUMP)
     if needs_q and ref.pitot is None and (ref.static is None or ref.total is None):
         issues.append(RigIssue("reference", f"{_a(rig.kind.value)} rig needs a dynamic-pressure source: pitot, or static and total"))
     if rig.balance is not None:
         for field in ("lift", "drag"):
             _pressure_channel(rig, f"balance.{field}", getattr(rig.balance, field), issues, Quantity.FORCE)
+    return issues
+
+
+def _ends_at_room(rig: Rig, name: str, depth: int = 0) -> bool:
+    """True when channel ``name``'s reading is referred (through differential chains) to the room or vacuum, so
+    referring it to the freestream needs the freestream static as a pressure, not as a port."""
+    names = {c.name for c in rig.channels}
+    if name not in names or depth > 8:
+        return False
+    ch = rig.channel(name)
+    if ch.measures in (Measures.GAUGE, Measures.ABSOLUTE):
+        return True
+    if ch.measures is Measures.DIFFERENTIAL and ch.relative_to not in (None, *NAMED_REFERENCES):
+        return _ends_at_room(rig, ch.relative_to, depth + 1)
+    return False
+
+
+def needs_static_source(rig: Rig) -> bool:
+    """True when no channel gives the freestream static but the taps need it: the rig must say where it comes from."""
+    if rig.reference.static is not None or rig.kind is RigKind.VENTURI:
+        return False
+    return any(_ends_at_room(rig, t.channel) for t in rig.taps)
+
+
+_SOURCE_KEYS = {"suction": ("inlet_loss", "inlet_loss_u"), "factor": ("static_factor", "static_factor_u"),
+                "room": (), "channel": ()}
+
+
+def _check_static_source(rig: Rig) -> list[RigIssue]:
+    ref = rig.reference
+    issues: list[RigIssue] = []
+    source = ref.static_source.value if ref.static_source is not None else None
+    if ref.static is not None and source not in (None, "channel"):
+        issues.append(RigIssue("reference.static_source", f"reference.static = {ref.static!r} is the freestream "
+                               "static; static_source must then be 'channel' or left out", source))
+    if source == "channel" and ref.static is None:
+        issues.append(RigIssue("reference.static_source", "'channel' needs reference.static = the channel whose "
+                               "port is the freestream static", source))
+    for key in ("inlet_loss", "inlet_loss_u", "static_factor", "static_factor_u"):
+        if getattr(ref, key) is not None and key not in _SOURCE_KEYS.get(source, ()):
+            issues.append(RigIssue(f"reference.{key}", f"only used with static_source = "
+                                   f"{'suction' if key.startswith('inlet') else 'factor'!r}", getattr(ref, key)))
+    for key in _SOURCE_KEYS.get(source, ()):
+        if getattr(ref, key) is None:
+            issues.append(RigIssue(f"reference.{key}", f"static_source = {source!r} needs {key} "
+                                   "(a value and its standard uncertainty, docs/rig-file.md)"))
+    if source in ("suction", "factor") and ref.pitot is None:
+        issues.append(RigIssue("reference.static_source", f"{source!r} refers the static to the room through q, "
+                               "which needs a pitot differential channel (reference.pitot)", source))
+    if source is None and needs_static_source(rig):
+        issues.append(RigIssue(
+            "reference.static_source",
+            "no channel measures the freestream static pressure and the taps are referred to the room: say where "
+            "it comes from: static_source = 'suction' (open-circuit suction tunnel, with inlet_loss and "
+            "inlet_loss_u), 'factor' (measured with the empty tunnel, with static_factor and static_factor_u; "
+            "docs/calibration.md) or 'room' (an open jet discharging into the room)"))
     return issues
 
 

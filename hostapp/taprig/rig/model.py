@@ -119,6 +119,15 @@ class Tap(Frozen):
     theta: Degrees | None = Field(None, alias="theta_deg", ge=-360.0, le=360.0, description="angle from the front [rad]")
 
 
+class StaticSource(str, Enum):
+    """Where a rig's freestream static pressure comes from (``[reference] static_source``)."""
+
+    CHANNEL = "channel"  # a channel's port is the freestream static (``static = "…"``)
+    SUCTION = "suction"  # open-circuit suction tunnel: p0 = room − K q, so p∞ = room − (1 + K) q
+    FACTOR = "factor"  # a tunnel calibration factor: room − p∞ = f q, measured once with the empty tunnel
+    ROOM = "room"  # an open jet discharging into the room: p∞ = room
+
+
 class Reference(Frozen):
     """Which channels give the freestream reference pressures."""
 
@@ -128,6 +137,55 @@ class Reference(Frozen):
     pitot_coefficient: float = Field(1.0, gt=0.0, description="q = pitot_coefficient · Δp_pitot [-]")
     atmosphere: Name | None = Field(None, description="absolute channel giving the room (barometric) pressure")
     inlet: Name | None = Field(None, description="venturi: tap name of the inlet (reference) station")
+    static_source: StaticSource | None = Field(
+        None, description="where the freestream static comes from when no channel is its port (see StaticSource)")
+    inlet_loss: float | None = Field(None, ge=0.0, le=2.0, description="suction: total-pressure loss of the inlet, × q [-]")
+    inlet_loss_u: float | None = Field(None, ge=0.0, le=1.0, description="standard uncertainty of inlet_loss [-]")
+    static_factor: float | None = Field(None, ge=-5.0, le=5.0,
+                                        description="factor: (p_room − p∞)/q measured with the empty tunnel [-]")
+    static_factor_u: float | None = Field(None, ge=0.0, le=1.0, description="standard uncertainty of static_factor [-]")
+
+    def static_offset(self) -> tuple[float, float] | None:
+        """(f, u(f)) with p_room − p∞ = f·q for a stated room-referred static, else None (a channel, or unstated).
+
+        ``suction``: an open-circuit tunnel drawing from the room, total pressure p0 = p_room − K q, so
+        f = 1 + K; ``factor``: f measured once with the empty tunnel (docs/calibration.md); ``room``: an open jet
+        discharging into the room, f = 0.
+        """
+        if self.static_source is StaticSource.SUCTION and self.inlet_loss is not None:
+            return 1.0 + self.inlet_loss, self.inlet_loss_u or 0.0
+        if self.static_source is StaticSource.FACTOR and self.static_factor is not None:
+            return self.static_factor, self.static_factor_u or 0.0
+        if self.static_source is StaticSource.ROOM:
+            return 0.0, 0.0
+        return None
+
+    def static_short(self) -> str:
+        """A few words for a live line: ``p∞ = port of p_static``, ``p∞ = room − 1.1 q (suction)`` …"""
+        offset = self.static_offset()
+        if self.static is not None:
+            return f"p∞ port {self.static}"
+        if offset is None:
+            return "p∞ unstated"
+        if self.static_source is StaticSource.ROOM:
+            return "p∞ = room (open jet)"
+        word = "suction" if self.static_source is StaticSource.SUCTION else "tunnel factor"
+        return f"p∞ = room − {offset[0]:.3g}q ({word})"
+
+    def static_statement(self) -> str:
+        """One sentence for people: where the freestream static pressure comes from."""
+        offset = self.static_offset()
+        if self.static is not None:
+            return f"freestream static pressure measured at the port of channel {self.static!r}"
+        if self.static_source is StaticSource.SUCTION and offset is not None:
+            return (f"freestream static = room − (1 + K)·q: open-circuit suction tunnel, inlet loss K = "
+                    f"{self.inlet_loss:.3g} ± {offset[1]:.2g} (stated in the rig file, not measured)")
+        if self.static_source is StaticSource.FACTOR and offset is not None:
+            return (f"freestream static = room − {offset[0]:.4g}·q ± {offset[1]:.2g}·q (tunnel calibration factor "
+                    f"measured with the empty tunnel)")
+        if self.static_source is StaticSource.ROOM:
+            return "freestream static = room pressure (open jet discharging into the room, stated in the rig file)"
+        return "freestream static: not stated"
 
 
 class AreaTable(Frozen):

@@ -183,7 +183,22 @@ def session_summary(reader: SessionReader, decoded: dict) -> dict:
         "link_events": len(link_events), "link_outages": sum(1 for e in link_events if e.kind == "lost"),
         "recording_error": meta.get("recording_error"), "counters": counters, "live_counters": live,
         "counters_match": None if live is None else not differing, "counters_differing": differing or [],
+        "assumptions": session_assumptions(reader),
     }
+
+
+def session_assumptions(reader: SessionReader) -> list[str]:
+    """What the session's reduction assumes (the freestream static's source, the speed relation, the
+    calibration in force at the start), or why its rig cannot be reduced."""
+    from taprig.reduce import ReduceError, stated_assumptions
+    from taprig.rig import RigError
+    from taprig.session.replay import ReplayError, calibrations_from_session
+
+    try:
+        calibrations = calibrations_from_session(reader)
+        return list(stated_assumptions(rig_from_session(reader), calibrations[0][1] if calibrations else None))
+    except (ReduceError, ReplayError, RigError, ValueError) as exc:
+        return [f"cannot reduce: {exc}"]
 
 
 def open_session(path: str | Path, calibration: Calibration | None = None) -> Session:

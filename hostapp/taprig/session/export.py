@@ -69,7 +69,8 @@ def scan_schema(rig: Rig, reducer: Reducer) -> ScanSchema:
     fields += [pa.field(name, pa.from_numpy_dtype(columns[name].dtype)) for name in reduced]
     counts = tuple((c.index, f"counts.{c.name}") for c in sorted(rig.channels, key=lambda c: c.index))
     fields += [pa.field(label, _COUNT_TYPES[rig.channel(index).encoding]) for index, label in counts]
-    return ScanSchema(pa.schema(fields), reduced, counts)
+    metadata = {"taprig.assumptions": json.dumps(list(reducer.assumptions), ensure_ascii=False)}
+    return ScanSchema(pa.schema(fields, metadata=metadata), reduced, counts)
 
 
 def block_table(block: ReplayBlock, spec: ScanSchema, t0_ns: int, start_ns: int) -> pa.Table:

@@ -5,9 +5,10 @@ and total pressure from the fan's state and the ambient; the bodies give a press
 pressure at a tap is ``p∞ + Cp · q``. The airfoil, which needs the panel method and a stall model, lives in
 :mod:`taprig.sim.airfoil`.
 
-The tunnel is open-circuit and draws from the room: its total pressure is the ambient pressure less the inlet
-loss, and its static pressure lies ``q`` below that (a suction tunnel). A water channel is the same stream with
-the fluid's density.
+The tunnel draws from the room. By default it is an open-circuit suction tunnel: its total pressure is the
+ambient pressure less the inlet loss, and its static pressure lies ``q`` below that; a blower tunnel (static above
+the room) and an open jet (static = room) are the other cases a rig file can state. Air expands isentropically
+from rest in the room; a water channel is the same stream, incompressible, with the fluid's density.
 """
 
 from __future__ import annotations
@@ -28,12 +29,20 @@ DEFAULT_INLET_LOSS = 0.1
 DEFAULT_DIFFUSER_EFFICIENCY = 0.85
 
 
+#: Static pressure of a blower tunnel's closed test section above the room, × q: the diffuser downstream recovers
+#: part of q before the air leaves into the room (from memory: of the order of 0.2–0.5 q).
+BLOWER_STATIC_RISE = 0.3
+#: The kinds of tunnel the simulator builds: where its test-section static lies against the room.
+TUNNEL_KINDS = ("suction", "blower", "open-jet")
+
+
 @dataclass(frozen=True)
 class Stream:
     """The free stream of a block of scans (arrays over scans, SI).
 
-    ``speed`` [m/s], ``density`` [kg/m³], ``q`` dynamic pressure [Pa], ``p_static`` and ``p_total`` absolute
-    pressures in the test section [Pa], ``p_ambient`` the room's absolute pressure [Pa].
+    ``speed`` [m/s], ``density`` [kg/m³] of the room air, ``q`` the impact pressure p0 − p∞ a pitot-static probe
+    reads [Pa] (the reference of every tap's Cp), ``p_static`` and ``p_total`` absolute pressures in the test
+    section [Pa], ``p_ambient`` the room's absolute pressure [Pa].
     """
 
     speed: np.ndarray
@@ -44,42 +53,67 @@ class Stream:
     p_ambient: float
 
 
-def tunnel_stream(speed: ArrayLike, density: float, p_ambient: float, inlet_loss: float = DEFAULT_INLET_LOSS) -> Stream:
-    r"""Free stream of an open-circuit suction tunnel drawing from the room.
+def tunnel_stream(speed: ArrayLike, density: float, p_ambient: float, inlet_loss: float = DEFAULT_INLET_LOSS,
+                  kind: str = "suction", compressible: bool = True, gamma: float = 1.4) -> Stream:
+    r"""Free stream of a tunnel drawing its air from the room, at rest at the room's pressure and temperature.
 
     .. math::
-        q = \tfrac12 \rho V^2, \qquad p_0 = p_a - K q, \qquad p_\infty = p_0 - q
+        q_d = \tfrac12 \rho_a V^2, \qquad
+        \frac{T}{T_0} = 1 - \frac{\gamma - 1}{2\gamma}\,\frac{V^2}{p_a/\rho_a}, \qquad
+        p_\infty = p_0 \left(\frac{T}{T_0}\right)^{\gamma/(\gamma - 1)}
+
+    with, by ``kind``: ``suction`` (open circuit, the fan downstream) p0 = p_a − K q_d; ``blower`` (the fan
+    upstream, a diffuser to the room after the test section) p∞ = p_a + 0.3 q_d; ``open-jet`` (discharging into
+    the room) p∞ = p_a. A liquid (``compressible=False``): p0 − p∞ = q_d.
 
     Parameters
     ----------
     speed : array_like
         Test-section speed V per scan [m/s].
     density : float
-        Fluid density ρ [kg/m³].
+        Density of the fluid at rest in the room ρ_a [kg/m³].
     p_ambient : float
         Room (barometric) pressure p_a [Pa].
     inlet_loss : float
-        Total-pressure loss coefficient of the inlet and screens K [-].
+        Total-pressure loss coefficient of a suction tunnel's inlet and screens K [-].
+    kind : str
+        ``suction``, ``blower`` or ``open-jet``.
+    compressible : bool
+        Isentropic expansion of a gas (True) or a liquid (False).
+    gamma : float
+        Ratio of specific heats γ [-].
 
     Returns
     -------
     Stream
-        Speed, density, q, static and total pressure per scan.
+        Speed, density, impact pressure q, static and total pressure per scan.
 
     References
     ----------
+    Energy equation and isentropic relation (Anderson, *Fundamentals of Aerodynamics*, 5th ed., eqs. 8.30, 7.32);
     Bernoulli's equation with a loss coefficient (common practice).
 
     Examples
     --------
-    >>> s = tunnel_stream([10.0], 1.2, 101325.0, inlet_loss=0.0)
+    >>> s = tunnel_stream([10.0], 1.2, 101325.0, inlet_loss=0.0, compressible=False)
     >>> float(s.q[0]), float(s.p_static[0])
     (60.0, 101265.0)
     """
+    if kind not in TUNNEL_KINDS:
+        raise ValueError(f"tunnel kind {kind!r}: expected one of {', '.join(TUNNEL_KINDS)}")
     v = np.asarray(speed, dtype=float)
-    q = dynamic_pressure(density, v)
-    p_total = p_ambient - inlet_loss * q
-    return Stream(v, float(density), q, p_total - q, p_total, float(p_ambient))
+    q_d = dynamic_pressure(density, v)
+    if compressible:
+        expansion = (1.0 - (gamma - 1.0) / (2.0 * gamma) * v**2 * density / p_ambient) ** (gamma / (gamma - 1.0))
+    else:
+        expansion = None
+    if kind == "suction":
+        p_total = p_ambient - inlet_loss * q_d
+        p_static = p_total * expansion if compressible else p_total - q_d
+    else:
+        p_static = p_ambient + (BLOWER_STATIC_RISE * q_d if kind == "blower" else 0.0 * q_d)
+        p_total = p_static / expansion if compressible else p_static + q_d
+    return Stream(v, float(density), p_total - p_static, p_static, p_total, float(p_ambient))
 
 
 def fan_speed(fan_value: ArrayLike, max_speed: float, unit: str) -> np.ndarray:

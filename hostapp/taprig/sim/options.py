@@ -77,6 +77,13 @@ class OptionError(ValueError):
         self.name, self.text, self.reason = name, text, reason
 
 
+def _tunnel(text: str) -> str:
+    word = text.strip().lower()
+    if word not in ("suction", "blower", "open-jet"):
+        raise ValueError("must be suction, blower or open-jet")
+    return word
+
+
 def _option(default, parse, help_text: str):
     return field(default=default, metadata={"parse": parse, "help": help_text})
 
@@ -98,6 +105,9 @@ class SimOptions:
     angle_rate_deg: float = _option(30.0, _nonnegative, "slew-rate limit of the angle servo [deg/s] (0 = none)")
     tube_mm: float = _option(500.0, _nonnegative, "length of each tap's tubing [mm]")
     bore_mm: float = _option(1.0, _nonnegative, "inner diameter of the tubing [mm]")
+    tunnel: str = _option("suction", _tunnel, "where the test-section static lies: suction (room − (1 + inlet_loss) q), "
+                          "blower (room + 0.3 q) or open-jet (room)")
+    inlet_loss: float = _option(0.1, _nonnegative, "total-pressure loss of a suction tunnel's inlet, × q [-]")
     ambient_pa: float = _option(101325.0, _nonnegative, "barometric pressure of the room [Pa]")
     ambient_c: float = _option(20.0, float, "room temperature [°C]")
     humidity: float = _option(0.5, _fraction, "relative humidity of the room [-]")

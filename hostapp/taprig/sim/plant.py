@@ -22,7 +22,6 @@ from taprig.rig.sensors import Quantity
 from taprig.sim.airfoil import AirfoilFlow, StallModel
 from taprig.sim.flows import (
     DEFAULT_DIFFUSER_EFFICIENCY,
-    DEFAULT_INLET_LOSS,
     bump_cp,
     cylinder_cp,
     tunnel_stream,
@@ -61,6 +60,8 @@ class Plant:
     pitot_coefficient: float
     force_area: float
     inlet_loss: float
+    tunnel: str = "suction"
+    compressible: bool = True
 
     @property
     def n_taps(self) -> int:
@@ -104,7 +105,8 @@ def build_plant(rig: Rig, options: SimOptions) -> Plant:
     length = geometry.chord or geometry.diameter or 1.0
     return Plant(
         rig, n_channels, fluid_density(rig, options), ambient_pressure(rig, options), port, relative, tap_cp,
-        airfoil, ref.pitot_coefficient, span * length, DEFAULT_INLET_LOSS,
+        airfoil, ref.pitot_coefficient, span * length, options.inlet_loss, options.tunnel,
+        rig.fluid.medium is Medium.AIR,
     )
 
 
@@ -169,7 +171,7 @@ def channel_values(plant: Plant, speed: np.ndarray, alpha: np.ndarray, draws: np
     ----------
     Definition of the pressure coefficient and of the lift coefficient (common practice).
     """
-    stream = tunnel_stream(speed, plant.density, plant.p_ambient, plant.inlet_loss)
+    stream = tunnel_stream(speed, plant.density, plant.p_ambient, plant.inlet_loss, plant.tunnel, plant.compressible)
     n_scans = speed.size
     if plant.airfoil is not None:
         section = plant.airfoil.pressures(alpha)

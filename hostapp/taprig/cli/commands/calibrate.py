@@ -8,7 +8,10 @@ Two ways in:
   formats), taken in order; :func:`guided` takes any :data:`taprig.rig.CountsSource`, so a script can feed it
   averages from a live board instead.
 
-The output must end in ``.toml`` or ``.json`` and is never overwritten unless ``--force`` is given.
+The output must end in ``.toml`` or ``.json`` and is never overwritten unless ``--force`` is given. A calibration
+that fails its own checks (a gain far from nominal, a linearity out of tolerance, a zero that drifted) is not
+written unless ``--accept-failed`` is given; it is then refused wherever it is used unless
+``--accept-failed-calibration`` is given, and every output made with it says so.
 """
 
 from __future__ import annotations
@@ -44,6 +47,8 @@ def register(sub) -> None:
     src = p.add_mutually_exclusive_group(required=True)
     src.add_argument("--from", dest="from_file", metavar="FILE", help="readings and counts of every step (TOML or CSV)")
     src.add_argument("--counts", metavar="FILE", help="guided mode: counts of each step (TOML or CSV); readings are asked")
+    src.add_argument("--static-factor", metavar="CSV",
+                     help="fit the tunnel's static factor from q_pa, room_minus_static_pa pairs (empty tunnel)")
     p.add_argument("-o", "--output", metavar="FILE", help="calibration file to write (.toml or .json; default RIGID.cal.toml)")
     p.add_argument("--force", action="store_true", help="replace an output file that already exists")
     p.add_argument("--note", default=None, help="operator note stored in the calibration")
@@ -56,6 +61,8 @@ def register(sub) -> None:
     p.add_argument("--latitude-deg", type=latitude, default=None,
                    help="local gravity from latitude, -90 to 90 (default standard gravity) [deg]")
     p.add_argument("--strict", action="store_true", help="exit 1 if any channel is out of tolerance")
+    p.add_argument("--accept-failed", action="store_true",
+                   help="write the calibration even when it fails its own checks (it is then marked wherever used)")
     p.set_defaults(func=run)
 
 
@@ -151,7 +158,43 @@ def output_path(args, rig_id: str) -> Path:
     return out
 
 
+def static_factor(path: str, rig, say: Callable[[str], None]) -> int:
+    """Fit f = (p_room − p∞)/q from a CSV of pairs and print the rig-file lines (docs/calibration.md)."""
+    import csv
+
+    from taprig.reduce import ReduceError
+    from taprig.reduce.tunnel import fit_static_factor
+
+    try:
+        with open(path, encoding="utf-8", newline="") as fh:
+            rows = list(csv.DictReader(fh))
+    except OSError as exc:
+        raise UserError(f"cannot read {path}: {exc.strerror or exc}") from None
+    except UnicodeDecodeError:
+        raise UserError(f"{path}: not a text CSV of q_pa, room_minus_static_pa pairs") from None
+    try:
+        q = [float(r["q_pa"]) for r in rows]
+        d = [float(r["room_minus_static_pa"]) for r in rows]
+    except (KeyError, TypeError, ValueError):
+        raise UserError(f"{path}: expected a CSV with the columns q_pa and room_minus_static_pa, numbers in "
+                        "every row") from None
+    try:
+        fit = fit_static_factor(q, d)
+    except ReduceError as exc:
+        raise UserError(f"{path}: {exc}") from None
+    say(f"static factor f = {fit.factor:.4f} ± {fit.u_factor:.4f} from {fit.n_points} points "
+        f"(residual rms {fit.residual_rms:.3g} Pa); put in [reference] of {rig.id!r}:")
+    say(fit.rig_lines())
+    return 0
+
+
 def run(args, ask: Callable[[str], str] = input, say: Callable[[str], None] = print) -> int:
+    if getattr(args, "static_factor", None):
+        try:
+            rig = load_rig(args.rig)
+        except RigError as exc:
+            raise UserError(str(exc)) from None
+        return static_factor(args.static_factor, rig, say)
     try:
         rig = load_rig(args.rig)
         out = output_path(args, rig.id)
@@ -174,6 +217,11 @@ def run(args, ask: Callable[[str], str] = input, say: Callable[[str], None] = pr
         cal = calibrate(rig, plan, source, _date(args.date))
     except ValueError as exc:
         raise UserError(str(exc)) from None
+    if cal.flagged and not args.accept_failed:
+        _report(cal, say)
+        found = "; ".join(f"{name}: {', '.join(flags)}" for name, flags in cal.flagged.items())
+        raise UserError(f"the calibration fails its own checks ({found}); nothing was written. Check the "
+                        "manometer's connection and redo it, or pass --accept-failed to write it anyway")
     try:
         out.write_text(calibration_to_text(cal, "json" if out.suffix.lower() == ".json" else "toml"), encoding="utf-8")
     except OSError as exc:

@@ -83,6 +83,17 @@ def _geometry_line(rig: Rig) -> str:
     return "geometry: " + (", ".join(parts) or "none")
 
 
+def _assumptions(rig: Rig) -> tuple[str, ...]:
+    """What a reduction of this rig assumes (the freestream static's source first), or why it cannot reduce."""
+    from taprig.reduce import ReduceError
+    from taprig.reduce.layout import rig_layout
+
+    try:
+        return rig_layout(rig, 101325.0).assumptions
+    except ReduceError as exc:
+        return (f"cannot reduce: {exc}",)
+
+
 def summary(rig: Rig) -> str:
     """The text ``taprig check`` prints for a valid rig."""
     ref = rig.reference
@@ -99,6 +110,7 @@ def summary(rig: Rig) -> str:
     lines += [f"channels ({len(rig.channels)}):"] + _channel_lines(rig)
     lines += _tap_lines(rig)
     lines.append("references: " + (", ".join(refs) or "none"))
+    lines += [f"assumes: {sentence}" for sentence in _assumptions(rig)]
     lines.append(_geometry_line(rig))
     if rig.balance is not None:
         lines.append("balance: " + ", ".join(f"{k} = {getattr(rig.balance, k)}" for k in ("lift", "drag") if getattr(rig.balance, k)))

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from taprig.cli import UserError
 from taprig.cli.commands.replay import progress_bar, session_errors
-from taprig.cli.runopts import load_calibration_arg
+from taprig.cli.runopts import add_accept_failed_option, load_calibration_arg
 
 
 def register(sub) -> None:
@@ -27,6 +27,7 @@ def register(sub) -> None:
     target.add_argument("--partitioned", metavar="DIR",
                         help="add the session(s) to the Parquet archive DIR/rig=<id>/date=<YYYY-MM-DD>/")
     p.add_argument("--calibration", metavar="CAL", help="re-reduce with this calibration file")
+    add_accept_failed_option(p)
     p.add_argument("--force", action="store_true", help="replace outputs that already exist")
     p.set_defaults(func=run)
 
@@ -44,7 +45,7 @@ def _format(args) -> str:
 def run(args) -> int:
     from taprig.session.export import export_partitioned, export_session
 
-    calibration = load_calibration_arg(args.calibration)
+    calibration = load_calibration_arg(args.calibration, accept_failed=args.accept_failed_calibration)
     if args.output is not None:
         if len(args.files) != 1:
             raise UserError("-o OUT takes one session; use --partitioned DIR for several", 2)

@@ -38,6 +38,7 @@ def _text(summary: dict) -> list[str]:
     if summary["counters_match"] is False:
         lines.append("warning   the live counters stored at stop differ from this decode in: "
                      + ", ".join(summary["counters_differing"]))
+    lines += [f"assumes   {sentence}" for sentence in summary.get("assumptions", [])]
     if summary["recording_error"]:
         lines.append(f"recording {summary['recording_error']}")
     return lines

@@ -35,7 +35,7 @@ def open_run(args, port: str, default_dir: str, stem: str | None = None, rig=Non
     from taprig.sim import with_rig
 
     rig = rig or load_rig_arg(args.rig)
-    calibration = load_calibration_arg(args.calibration, rig)
+    calibration = load_calibration_arg(args.calibration, rig, getattr(args, "accept_failed_calibration", False))
     ambient = ambient_arg(args, rig)
     reducer = build_reducer(rig, calibration, ambient)
     out = new_output_path(args.output, default_dir, stem or rig.id)

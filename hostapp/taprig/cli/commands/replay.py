@@ -17,7 +17,7 @@ import time
 import numpy as np
 
 from taprig.cli import UserError, finite_nonnegative, finite_positive
-from taprig.cli.runopts import load_calibration_arg, one_line
+from taprig.cli.runopts import add_accept_failed_option, load_calibration_arg, one_line
 
 
 def register(sub) -> None:
@@ -30,6 +30,7 @@ def register(sub) -> None:
                       help="play at X × real time (default 1)")
     pace.add_argument("--fast", action="store_true", help="play as fast as possible")
     p.add_argument("--calibration", metavar="CAL", help="re-reduce with this calibration file instead of the session's")
+    add_accept_failed_option(p)
     p.add_argument("--seek", type=finite_nonnegative, default=0.0, metavar="S",
                    help="start S seconds after the session start (decoding still starts at the first byte)")
     p.add_argument("--quiet", action="store_true", help="only the final summary, no line per second")
@@ -120,7 +121,7 @@ def _final(replay, scans: int, played_s: float, wall_s: float, calibration: str 
 def run(args) -> int:
     from taprig.session.replay import Replay
 
-    calibration = load_calibration_arg(args.calibration)
+    calibration = load_calibration_arg(args.calibration, accept_failed=args.accept_failed_calibration)
     with session_errors():
         replay = Replay(args.file, calibration=calibration, speed=None if args.fast else args.speed,
                         seek_s=args.seek)
