@@ -20,14 +20,31 @@ from taprig.rig import parse_rig
 from taprig.rig.errors import RigError
 
 CYLINDER = (Path(__file__).resolve().parents[2] / "rigs" / "cylinder.toml").read_text(encoding="utf-8")
-PROBE = 'name = "pitot_dp"\nencoding = "i16"\nsensor = "diff500"\nmeasures = "differential"\nrelative_to = "static"'
+GAUGE_CHANNELS = """[[channels]]
+index = 0
+name = "pitot_dp"
+encoding = "i16"
+sensor = "diff500"
+measures = "differential"
+relative_to = "static"
+
+[[channels]]
+index = 1
+count = 13
+name = ["c00", "c15", "c30", "c45", "c60", "c75", "c90", "c105", "c120", "c135", "c150", "c165", "c180"]
+encoding = "i16"
+sensor = "diff500"
+measures = "gauge"
+
+"""
 
 
 def room_referred_cylinder(reference_lines: str):
     """The example cylinder with every tap on a gauge (room-referenced) sensor, the pitot unchanged, and the given
     lines added to [reference]."""
-    text = CYLINDER.replace('measures = "differential"\nrelative_to = "static"', 'measures = "gauge"')
-    text = text.replace(PROBE.replace('"differential"\nrelative_to = "static"', '"gauge"'), PROBE, 1)
+    start = CYLINDER.index("[[channels]]")
+    end = CYLINDER.index("# Taps")
+    text = CYLINDER[:start] + GAUGE_CHANNELS + CYLINDER[end:]
     text = text.replace("[reference]\n", "[reference]\n" + reference_lines, 1)
     return parse_rig(text, "cylinder-gauge.toml")
 
