@@ -150,3 +150,11 @@ def test_the_documented_compact_example_is_a_valid_rig() -> None:
     rig = parse_rig(example, "docs/rig-file.md")
     assert [c.name for c in rig.channels] == ["pitot", "t1", "t2", "t3", "t4", "t5", "t6"]
     assert [t.surface.value for t in rig.taps] == ["upper"] * 3 + ["lower"] * 3
+
+
+def test_the_getting_started_rig_is_valid_in_the_compact_form() -> None:
+    text = (RIGS.parent / "docs" / "getting-started.md").read_text(encoding="utf-8")
+    example = text.split("```toml\n# Makerspace", 1)[1].split("```", 1)[0]
+    rig = parse_rig("# Makerspace" + example, "docs/getting-started.md")
+    assert [c.name for c in rig.channels] == ["adc0", "adc1", "adc2", "bridge0", "bridge1", "load"]
+    assert [(t.name, t.channel) for t in rig.taps] == [("U1", "adc0"), ("U2", "adc1"), ("L1", "adc2"), ("L2", "bridge1")]

@@ -185,8 +185,11 @@ def _inline_place(table: dict, r: int, tap_name):
     return place
 
 
-def parse_tap_csv(text: str, name: str) -> tuple[list[tuple[int, dict]], list[RigIssue]]:
+def parse_tap_csv(text: str, name: str, required: tuple[str, ...] = ("name",),
+                  allowed: tuple[str, ...] = TAP_KEYS) -> tuple[list[tuple[int, dict]], list[RigIssue]]:
     """Rows of a tap CSV as (line number, {tap key: value}); a header line names the columns.
+
+    The header must name each of ``required`` and only keys of ``allowed``, each once.
 
     Numbers are converted (``x_c``, ``y_c``, ``x_mm``, ``area_mm2``, ``theta_deg``); empty cells are left out;
     blank lines and lines starting with ``#`` are skipped. Each problem names the file, line and column.
@@ -204,10 +207,11 @@ def parse_tap_csv(text: str, name: str) -> tuple[list[tuple[int, dict]], list[Ri
             continue
         where = f"{name} line {lineno}"
         if header is None:
-            unknown = [c for c in cells if c not in TAP_KEYS]
-            if unknown or "name" not in cells or len(set(cells)) != len(cells):
+            unknown = [c for c in cells if c not in allowed]
+            if unknown or not set(required) <= set(cells) or len(set(cells)) != len(cells):
                 issues.append(RigIssue(TAP_FILE_KEY, f"{where}: expected a header line naming each column once, "
-                                       f"name among them (tap keys: {', '.join(TAP_KEYS)})", ",".join(raw)))
+                                       f"{' and '.join(required)} among them (columns: {', '.join(allowed)})",
+                                       ",".join(raw)))
                 return [], issues
             header = cells
             continue
