@@ -353,3 +353,30 @@ def reynolds_number(
     chord = require_positive("reference length", length, "m")
     mu = require_positive("dynamic viscosity", dynamic_viscosity, "Pa s")
     return rho * np.asarray(speed, dtype=float) * chord / mu
+
+
+def cylinder_cp(theta: ArrayLike) -> np.ndarray:
+    r"""Surface Cp of a circular cylinder in potential flow.
+
+    .. math:: C_p = 1 - 4 \sin^2\theta
+
+    Parameters
+    ----------
+    theta : array_like
+        Angle from the front stagnation point θ [rad].
+
+    Returns
+    -------
+    ndarray
+        Cp [-].
+
+    References
+    ----------
+    Potential flow about a circular cylinder (doublet in a uniform stream), common practice.
+
+    Examples
+    --------
+    >>> cylinder_cp([0.0, np.pi / 6, np.pi / 2]).round(12).tolist()
+    [1.0, 0.0, -3.0]
+    """
+    return 1.0 - 4.0 * np.sin(np.asarray(theta, dtype=float)) ** 2

@@ -357,6 +357,20 @@ class ShapeFitIntegrator:
                               alpha_effective=0.5 * np.arctan2(-a[..., 3], -a[..., 2]),
                               residual_rms=np.sqrt(np.mean(residual * residual, axis=-1)))
 
+    def fitted_cp(self, cp: ArrayLike) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The fitted Cp distribution round the dense panel contour, for drawing through the taps.
+
+        Returns (x/c, upper, Cp) at the panel model's nodes [-]: the same least-squares fit that :meth:`integrate`
+        integrates (model in the class docstring), evaluated where the panel method has its nodes.
+        """
+        cp = np.asarray(cp, dtype=float)
+        if cp.shape != self.tap_x_c.shape:
+            raise ValueError(f"ShapeFitIntegrator: Cp must hold the {self.tap_x_c.size} taps, got shape {cp.shape}")
+        model = self.model
+        upper = np.arange(model.node_s.size) <= int(np.argmin(model.node_x))
+        dense = self._basis(model, model.node_s, model.node_x, upper, self.n_modes)
+        return np.asarray(model.node_x, dtype=float), upper, dense @ (self._projector @ cp + self._prior_fit)
+
     @staticmethod
     def _spread(other: SectionCoefficients, ref: SectionCoefficients) -> tuple[np.ndarray, ...]:
         return tuple(np.abs(getattr(other, f) - getattr(ref, f)) for f in ("cl", "cd_p", "cm_qc"))

@@ -16,6 +16,7 @@ import numpy as np
 
 from taprig.physics.air import AirState
 from taprig.physics.constants import ZERO_CELSIUS
+from taprig.physics.flow import cylinder_cp
 from taprig.physics.water import water_density
 from taprig.rig.model import Measures, Medium, Rig, RigKind
 from taprig.rig.sensors import Quantity
@@ -23,7 +24,6 @@ from taprig.sim.airfoil import AirfoilFlow, StallModel
 from taprig.sim.flows import (
     DEFAULT_DIFFUSER_EFFICIENCY,
     bump_cp,
-    cylinder_cp,
     tunnel_stream,
     venturi_station_cp,
 )
