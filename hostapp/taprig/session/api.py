@@ -22,6 +22,7 @@ import pyarrow as pa
 from taprig.protocol import RawBlock, StreamDecoder
 from taprig.rig import Calibration, Rig
 from taprig.session.export import points_frame, scan_schema, scan_tables
+from taprig.session.meta import description_from_meta
 from taprig.session.replay import Replay, rig_from_session, session_start_ns
 from taprig.session.store import SessionReader
 
@@ -30,7 +31,7 @@ Progress = Callable[[int, int], None]
 
 def decode_all(reader: SessionReader, progress: Progress | None = None) -> dict:
     """Decode every chunk (no reduction): the decoder's counters, scans decoded and first/last device times."""
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(description_from_meta(reader.meta))
     total = reader.chunk_summary()[0]
     scans, first, last = 0, None, None
     for done, chunk in enumerate(reader.chunks(), start=1):

@@ -32,7 +32,7 @@ import numpy as np
 from taprig.protocol import ActuatorKind, Counters, RawBlock, StreamDecoder
 from taprig.reduce import Ambient, ReducedBlock, ReduceError, Reducer, ambient_for
 from taprig.rig import Calibration, Rig, RigError, calibration_from_text, parse_rig
-from taprig.session.meta import ambient_from_meta
+from taprig.session.meta import ambient_from_meta, description_from_meta
 from taprig.session.store import Entry, SessionError, SessionReader
 
 #: Scans gathered before one reduction call in a fast replay (large enough to amortise the per-call cost, small
@@ -219,7 +219,7 @@ class Replay:
         self.total_chunks, _, first_ns, last_ns = self.reader.chunk_summary()
         self._first_chunk_ns = first_ns or 0
         self._check_seek(last_ns)
-        self.decoder = StreamDecoder()
+        self.decoder = StreamDecoder(description_from_meta(self.reader.meta))
         self.first_t_ns: int | None = None
         self._origin: tuple[int, float] | None = None
 
@@ -275,9 +275,14 @@ class Replay:
         """Index of the reducer in force at ``host_ns``: 0 (nominal) before the first calibration's host time."""
         return bisect.bisect_right(self._switch_ns, host_ns)
 
+    def reducer_in_force(self, host_ns: int) -> Reducer:
+        """The reducer that reduces a chunk that arrived at ``host_ns`` (see :meth:`reducer_at`)."""
+        return self._reducers[self.reducer_at(host_ns)]
+
     def __iter__(self) -> Iterator[ReplayStep]:
         """Replay from the first chunk (each iteration starts afresh, with a new decoder)."""
-        self.decoder, self.first_t_ns, self._origin = StreamDecoder(), None, None
+        self.decoder = StreamDecoder(description_from_meta(self.reader.meta))
+        self.first_t_ns, self._origin = None, None
         seek_ns = (self.start_ns or 0) + round(self.seek_s * 1e9)
         items: list = []
         pending: list[tuple[RawBlock, int]] = []
