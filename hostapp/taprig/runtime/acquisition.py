@@ -166,11 +166,37 @@ class Acquisition:
         if self._thread.is_alive():
             self._thread.join(5)
         if self.writer is not None:
-            self.writer.set_meta("counters", _json(self.link.counters.as_dict()))
-            self.writer.set_meta("stopped_utc", datetime.now(timezone.utc).isoformat())
-            self.writer.set_meta("host_stopped_ns", str(time.time_ns()))
-            self.writer.close()
+            _finish(self.writer, self.link.counters.as_dict())
         self.hub.close()
+
+    # -- recording on demand -----------------------------------------------------------------------------------
+    def attach_writer(self, writer: SessionWriter) -> None:
+        """Start recording into ``writer`` mid-run (its metadata and rig snapshot already written).
+
+        The record starts with what a replay needs to reduce it as the live run did: the board's self-description
+        (so the samples decode without the handshake's bytes), the calibration in force and every setpoint now.
+        """
+        if self.writer is not None:
+            raise AcquisitionError(f"already recording to {self.writer.path}")
+        if self.description is not None:
+            writer.set_meta("device_description", _description_json(self.description))
+        calibration = self.reducer.calibration
+        if calibration is not None:
+            writer.add_snapshot("calibration", "in force when recording started", calibration_to_text(calibration))
+        with self._schedule_lock:
+            host_ns = time.time_ns()
+            for name, value in self.setpoints.items():
+                writer.add_event("setpoint", {"actuator": name, "value": value}, host_ns)
+            if self._stream is not None:
+                writer.add_event("start", {"rate_hz": self._stream[0], "channel_mask": self._stream[1]}, host_ns)
+            self.writer = writer
+
+    def detach_writer(self) -> SessionWriter | None:
+        """Stop recording mid-run: close the session file with its counters; returns the closed writer."""
+        writer, self.writer = self.writer, None
+        if writer is not None:
+            _finish(writer, self.link.counters.as_dict())
+        return writer
 
     # -- commands and operator events -----------------------------------------------------------------------
     def set_actuator(self, name: str, value: float) -> None:
@@ -282,8 +308,9 @@ class Acquisition:
 
     # -- the link's threads -------------------------------------------------------------------------------
     def _on_chunk(self, chunk: bytes, host_ns: int, items: list) -> None:
-        if self.writer is not None:
-            self.writer.append_chunk(chunk, host_ns)
+        writer = self.writer  # once: recording may be stopped from another thread meanwhile
+        if writer is not None:
+            writer.append_chunk(chunk, host_ns)
         if self.link_state in ("connected", "restored") and any(isinstance(i, Description) for i in items):
             self._schedule_resume()  # the board rebooted under a live link (a reset): it is idle and safe now
         blocks = [item for item in items if isinstance(item, RawBlock)]
@@ -381,6 +408,14 @@ def point_record(mean: ReducedMean, seconds: float) -> dict:
         "corrected": _coefficients(mean.corrected),
         "lift_n": num(mean.lift_n), "cl_balance": num(mean.cl_balance), "mass_flow_kg_s": num(mean.mass_flow_kg_s),
     }
+
+
+def _finish(writer: SessionWriter, counters: dict) -> None:
+    """Close a session file with the link's counters and the stop time."""
+    writer.set_meta("counters", _json(counters))
+    writer.set_meta("stopped_utc", datetime.now(timezone.utc).isoformat())
+    writer.set_meta("host_stopped_ns", str(time.time_ns()))
+    writer.close()
 
 
 def _json(obj) -> str:

@@ -7,6 +7,7 @@ as long as the data does, and a sweep on a real board is not fooled by a slow ho
 from __future__ import annotations
 
 import math
+import threading
 import time
 from dataclasses import dataclass
 from typing import Callable, Sequence
@@ -58,12 +59,20 @@ def wait_device_time(acq: Acquisition, seconds: float, timeout_s: float) -> None
 
 
 def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1.0, average_s: float = 1.0,
-              timeout_s: float = 30.0, on_point: Callable[[SweepPoint], None] | None = None) -> list[SweepPoint]:
-    """Step the angle actuator through ``angles_rad``, capturing a point of ``average_s`` after ``settle_s`` each."""
+              timeout_s: float = 30.0, on_point: Callable[[SweepPoint], None] | None = None,
+              stop: threading.Event | None = None) -> list[SweepPoint]:
+    """Step the angle actuator through ``angles_rad``, capturing a point of ``average_s`` after ``settle_s`` each.
+
+    ``stop``, when set (by the operator, from another thread), ends the sweep before its next step; the points
+    taken so far are returned and nothing more is sent.
+    """
     name = _angle_actuator(acq)
     points = []
     acq.event("sweep", {"angles_rad": list(map(float, angles_rad)), "settle_s": settle_s, "average_s": average_s})
     for alpha in angles_rad:
+        if stop is not None and stop.is_set():
+            acq.event("sweep stopped", {"by": "operator", "points": len(points)})
+            break
         acq.set_actuator(name, float(alpha))
         wait_device_time(acq, settle_s + average_s, timeout_s)
         acq.check_flow(average_s)  # a sweep of points without flow would be numbers without meaning

@@ -1,0 +1,411 @@
+"""The station: one rig run by an operator from the dashboard, and the display updates its viewers share.
+
+A :class:`Station` wraps a live :class:`~taprig.runtime.acquisition.Acquisition` and offers what the page's
+controls do: zero, record on demand, capture a point, a note, actuator setpoints within the rig's limits, a sweep
+and the stop that sends every actuator to its safe value. It computes nothing itself: the reducer makes the means,
+:mod:`taprig.runtime.viewframe` lays them out.
+
+Display updates are made on one thread, at most ``max_rate_hz`` a second and only while someone watches, from the
+mean of the newest ``window_s`` of scans; every viewer gets the same :class:`Frame` (serialised once), latest
+wins. A slow viewer misses updates; the acquisition and the record never wait for a viewer.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import threading
+import time
+from collections import deque
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+
+from taprig.protocol import ActuatorKind, DeviceState
+from taprig.reduce import ReduceError, ScanFlag
+from taprig.reduce.polar import lift_curve
+from taprig.runtime.acquisition import Acquisition, AcquisitionError, LiveState
+from taprig.runtime.hub import Hub
+from taprig.runtime.viewframe import (actuator_value_from_operator, num, point_summary, reading,
+                                      rig_description)
+from taprig.session.store import SessionWriter
+
+
+TREND_SECONDS = 300.0   # how far back the trend plot reaches
+TREND_RATE_HZ = 5.0     # trend samples per second kept for it
+
+
+class Frame:
+    """One display update: its data and, made once on first use and shared by every viewer, its JSON text."""
+
+    __slots__ = ("data", "_text", "_lock")
+
+    def __init__(self, data: dict):
+        self.data = data
+        self._text: bytes | None = None
+        self._lock = threading.Lock()
+
+    def text(self) -> bytes:
+        """The update as compact UTF-8 JSON (serialised once for all viewers)."""
+        with self._lock:
+            if self._text is None:
+                self._text = json.dumps(self.data, separators=(",", ":"), allow_nan=False).encode()
+            return self._text
+
+
+@dataclass
+class SweepStatus:
+    """Where a sweep started from the page stands."""
+
+    running: bool = False
+    done: int = 0
+    total: int = 0
+    message: str = ""
+    stop: threading.Event = field(default_factory=threading.Event)
+
+
+class Display:
+    """Display updates of a run (live or replayed) for any number of viewers: one thread, latest wins.
+
+    Subclasses give ``source`` (with ``hub``, ``recent(seconds)``, ``reducer``, ``alpha_rad``) and ``status()``
+    (what else the page shows: link, setpoints, recording, sweep or playback).
+    """
+
+    def __init__(self, source, window_s: float = 0.25, max_rate_hz: float = 25.0):
+        self.source = source
+        self.window_s = window_s
+        self.min_interval = 1.0 / max_rate_hz
+        self.frames: Hub[Frame] = Hub(history_len=1)
+        self.notices: list[dict] = []  # what the operator was told, newest last (bounded)
+        self.points: list[dict] = []  # captured points (viewframe.point_summary), in capture order
+        self.trend: deque = deque(maxlen=int(TREND_SECONDS * TREND_RATE_HZ))  # (host_ns, q, Cl), ≥ 5 minutes
+        self._lock = threading.Lock()
+        self._closed = threading.Event()
+        self._seq = 0
+        self._thread = threading.Thread(target=self._view_loop, name="taprig-view", daemon=True)
+
+    def notify(self, text: str) -> None:
+        """Tell every viewer something (shown in the page's message line)."""
+        with self._lock:
+            self.notices.append({"host_ns": time.time_ns(), "text": text})
+            del self.notices[:-20]
+
+    def points_view(self) -> dict:
+        """Captured points and, from three or more with lift, the lift curve (slope, zero-lift angle, stall)."""
+        with self._lock:
+            points = list(self.points)
+        curve = None
+        usable = [p for p in points if p["cl"] is not None and p["alpha_deg"] is not None]
+        if len(usable) >= 3:
+            try:  # against the wall-corrected angle where the coefficients are corrected (as the sweep's curve)
+                fit = lift_curve([math.radians(p["alpha_corrected_deg"] if p["alpha_corrected_deg"] is not None
+                                               else p["alpha_deg"]) for p in usable], [p["cl"][0] for p in usable])
+                curve = {"slope_per_deg": num(fit.slope * math.pi / 180),
+                         "u_slope_per_deg": num(fit.u_slope * math.pi / 180),
+                         "alpha_zero_lift_deg": num(math.degrees(fit.alpha_zero_lift)),
+                         "linear_range_deg": [num(math.degrees(a)) for a in fit.linear_range],
+                         "cl_max": num(fit.cl_max), "alpha_cl_max_deg": num(math.degrees(fit.alpha_cl_max)),
+                         "stalled": bool(fit.stalled)}
+            except ValueError:
+                curve = None
+        return {"points": points, "lift_curve": curve}
+
+    def status(self, state: LiveState | None) -> dict:
+        """What the page shows besides the numbers (overridden)."""
+        return {}
+
+    def trend_view(self) -> list:
+        """The trend of q [Pa] and Cl over the last minutes: ``[host_ns, q, Cl]`` rows, oldest first."""
+        with self._lock:
+            return list(self.trend)
+
+    def _sample_trend(self, state: LiveState | None) -> None:
+        if state is None or state.block is None:
+            return
+        summary = state.summary()
+        flowing = np.count_nonzero(state.block.scan_flags & ScanFlag.NO_FLOW) * 2 < state.block.n_scans
+        row = [state.host_ns, num(summary.get("q_pa")), num(summary.get("cl")) if flowing else None]
+        with self._lock:
+            if not self.trend or state.host_ns - self.trend[-1][0] >= 1e9 / TREND_RATE_HZ:
+                self.trend.append(row)
+
+    def _view_loop(self) -> None:
+        last = 0.0
+        with self.source.hub.subscribe() as sub:
+            while not self._closed.is_set():
+                state = sub.get(timeout=0.5)
+                self._sample_trend(state)
+                if self.frames.subscriber_count == 0:
+                    continue
+                wait = last + self.min_interval - time.monotonic()
+                if wait > 0 and self._closed.wait(wait):
+                    break
+                state = sub.get(timeout=0) or state or self.source.hub.latest
+                try:
+                    self.frames.publish(self.frame(state))
+                except Exception as exc:  # a display update must never end the run; say what went wrong
+                    self.notify(f"display update failed: {exc}")
+                last = time.monotonic()
+
+    def frame(self, state: LiveState | None) -> Frame:
+        """The display update for ``state``: the mean of the newest window of scans, and :meth:`status`."""
+        src = self.source
+        self._seq += 1
+        data = {"seq": self._seq, "sent_ns": 0, "host_ns": state.host_ns if state else None,
+                "notices": self.notices[-3:], "reading": None, **self.status(state)}
+        with self._lock:
+            data["trend"] = self.trend[-1] if self.trend else None
+        block = src.recent(self.window_s)
+        if state is not None and state.block is not None and block is not None and block.n_scans >= 2:
+            reducer = src.reducer
+            mean = reducer.reduce_mean(block, alpha_rad=src.alpha_rad)
+            data["reading"] = reading(reducer, mean, state.block.channel_flag_counts(),
+                                      (int(block.scan_index[0]), int(block.scan_index[-1])), src.alpha_rad is not None)
+        data["sent_ns"] = time.time_ns()
+        return Frame(data)
+
+    def close(self) -> None:
+        """Stop the display thread."""
+        self._closed.set()
+        self.frames.close()
+        if self._thread.is_alive():
+            self._thread.join(2)
+
+
+class Station(Display):
+    """Interactive control of one live run, and display updates for any number of viewers.
+
+    Parameters
+    ----------
+    acquisition : Acquisition
+        Opened and streaming.
+    new_writer : callable, optional
+        Makes a new session writer (its metadata and the rig snapshot already written) when recording starts;
+        None: this run cannot record on demand (it records from the start, or not at all).
+    real_board : bool
+        The first actuator command of the run must be confirmed by the operator (not on a simulated rig).
+    """
+
+    def __init__(self, acquisition: Acquisition, new_writer: Callable[[], SessionWriter] | None = None,
+                 real_board: bool = False, window_s: float = 0.25, max_rate_hz: float = 25.0):
+        super().__init__(acquisition, window_s, max_rate_hz)
+        self.acq = acquisition
+        self.rig = acquisition.rig
+        self.new_writer = new_writer
+        self.needs_confirmation = real_board
+        self.sweep = SweepStatus()
+        self._rates: tuple[float, dict] | None = None
+        self._last_rates: dict[str, float] = {}
+        self._thread.start()
+
+    # -- what the page asks ---------------------------------------------------------------------------------
+    def describe(self) -> dict:
+        """The rig as a viewer needs it (taps, actuators, theory, assumptions), and what the run can do."""
+        out = rig_description(self.acq.reducer, self._calibration_text())
+        out["can_record"] = self.new_writer is not None
+        out["real_board"] = self.needs_confirmation or not self.acq.link.port_name.lower().startswith("sim://")
+        out["port"] = self.acq.link.port_name
+        return out
+
+    def _calibration_text(self) -> str:
+        cal = self.acq.reducer.calibration
+        if cal is None:
+            return "no calibration: the sensors' nominal transfer functions (datasheet accuracy)"
+        flagged = cal.flagged
+        text = f"calibration of {cal.date:%Y-%m-%d %H:%M} ({cal.operator_note or 'no note'})"
+        if flagged:
+            text += "; OUT OF TOLERANCE: " + ", ".join(f"{n} ({', '.join(f)})" for n, f in flagged.items())
+        return text
+
+    # -- commands ---------------------------------------------------------------------------------------------
+    def confirm(self) -> None:
+        """The operator confirmed the rig is safe to move (guards on, hands clear): actuators may be commanded."""
+        self.needs_confirmation = False
+        self.acq.event("confirmed", {"by": "operator", "what": "actuators may move"})
+
+    def _check_may_move(self) -> None:
+        if self.needs_confirmation:
+            raise AcquisitionError("confirm first: on a real board the first actuator command of a run needs the "
+                                   "operator's confirmation that guards are on and hands are clear")
+        reason = getattr(self.acq, "halt_reason", None)
+        if reason:
+            raise AcquisitionError(f"the board went safe on its own ({reason}); resume control first")
+
+    def set_actuator(self, name: str, value: float) -> float:
+        """Set an actuator from the operator's value (degrees for an angle); returns the SI value sent."""
+        actuator = next((a for a in self.rig.actuators if a.name == name), None)
+        if actuator is None:
+            raise AcquisitionError(f"this rig has no actuator {name!r}; it has "
+                                   + (", ".join(a.name for a in self.rig.actuators) or "none"))
+        if not math.isfinite(value):
+            raise AcquisitionError(f"{name}: the value must be a finite number")
+        si = actuator_value_from_operator(actuator, value)
+        if not actuator.min - 1e-12 <= si <= actuator.max + 1e-12:
+            lo, hi = (math.degrees(actuator.min), math.degrees(actuator.max)) \
+                if actuator.kind is ActuatorKind.ANGLE else (actuator.min, actuator.max)
+            raise AcquisitionError(f"{name}: {value:g} is outside its limits {lo:g} … {hi:g}")
+        self._check_may_move()
+        self.acq.set_actuator(name, min(max(si, actuator.min), actuator.max))
+        return si
+
+    def stop_all(self) -> list[str]:
+        """Stop any sweep and send every actuator to its safe value; returns what could not be sent."""
+        self.sweep.stop.set()
+        failed = []
+        for actuator in self.rig.actuators:
+            try:
+                self.acq.set_actuator(actuator.name, actuator.safe)
+            except AcquisitionError as exc:
+                failed.append(str(exc))
+        self.acq.event("stop", {"by": "operator", "failed": failed})
+        self.notify("stop: every actuator sent to its safe value" if not failed else
+                    "stop: " + "; ".join(failed) + " — the board's watchdog sets safe values when the host goes quiet")
+        return failed
+
+    def resume_control(self) -> None:
+        """The operator takes control again after the board went safe on its own."""
+        clear = getattr(self.acq, "clear_halt", None)
+        if clear is not None:
+            clear()
+
+    def zero(self) -> None:
+        """A wind-off zero from the last second (refused while the fan runs: that would zero the flow away)."""
+        fan = self.rig.actuator_of_kind(ActuatorKind.FAN)
+        if fan is not None and self.acq.setpoints.get(fan.name, fan.safe) != fan.safe:
+            raise AcquisitionError(f"the fan is set to {self.acq.setpoints[fan.name]:g}: a wind-off zero needs it at "
+                                   f"its safe value {fan.safe:g} and the flow stopped")
+        self.acq.zero(1.0, note="wind-off zero from the dashboard")
+        self.notify("wind-off zero taken")
+
+    def capture(self, label: str = "", seconds: float = 1.0) -> dict:
+        """Average the last ``seconds`` into a point (recorded when recording) and add it to the table."""
+        mean = self.acq.capture_point(label or f"point {len(self.points) + 1}", seconds)
+        with self._lock:
+            summary = point_summary(len(self.points) + 1, label or f"point {len(self.points) + 1}", mean,
+                                    self.acq.alpha_rad)
+            self.points.append(summary)
+        return summary
+
+    def note(self, text: str) -> None:
+        """Record the operator's note (kept in the session when recording)."""
+        self.acq.note(text)
+        self.notify(f"note: {text}")
+
+    def start_recording(self) -> str:
+        """Start recording into a new session file; returns its path."""
+        if self.new_writer is None:
+            raise AcquisitionError("this run cannot start a recording from the page")
+        if self.acq.writer is not None:
+            return str(self.acq.writer.path)
+        writer = self.new_writer()
+        self.acq.attach_writer(writer)
+        self.notify(f"recording to {writer.path}")
+        return str(writer.path)
+
+    def stop_recording(self) -> str | None:
+        """Close the session file being written (the run goes on); returns its path."""
+        if self.new_writer is None:
+            raise AcquisitionError("this run records from its start to its end; it cannot stop recording midway")
+        writer = self.acq.detach_writer()
+        if writer is None:
+            return None
+        self.notify(f"recording stopped: {writer.path}")
+        return str(writer.path)
+
+    def start_sweep(self, from_deg: float, to_deg: float, step_deg: float, settle_s: float = 1.0,
+                    average_s: float = 1.0) -> int:
+        """Step the angle actuator through the range on a thread, capturing a point at each; returns the count."""
+        from taprig.runtime.sweep import run_sweep
+
+        servo = self.rig.actuator_of_kind(ActuatorKind.ANGLE)
+        if servo is None:
+            raise AcquisitionError("this rig has no angle actuator to sweep")
+        if self.sweep.running:
+            raise AcquisitionError("a sweep is already running; stop it first")
+        for name, v in (("from", from_deg), ("to", to_deg), ("step", step_deg), ("settle", settle_s),
+                        ("average", average_s)):
+            if not math.isfinite(v):
+                raise AcquisitionError(f"sweep {name}: must be a finite number")
+        if step_deg <= 0 or settle_s < 0 or not 0 < average_s <= 30 or settle_s > 60:
+            raise AcquisitionError("sweep: step must be > 0°, settle 0–60 s and average 0–30 s")
+        if to_deg < from_deg:
+            raise AcquisitionError(f"sweep: 'to' ({to_deg:g}°) is below 'from' ({from_deg:g}°); give the range "
+                                   "from the lower angle up")
+        lo, hi = math.degrees(servo.min), math.degrees(servo.max)
+        if from_deg < lo - 1e-9 or to_deg > hi + 1e-9:
+            raise AcquisitionError(f"sweep: {from_deg:g}…{to_deg:g}° is outside the servo's limits {lo:g}…{hi:g}°")
+        n = int(math.floor((to_deg - from_deg) / step_deg + 1e-9)) + 1
+        if n > 200:
+            raise AcquisitionError(f"sweep: {n} angles is more than 200; take a larger step")
+        self._check_may_move()
+        angles = [math.radians(from_deg + k * step_deg) for k in range(n)]
+        status = SweepStatus(running=True, total=n, message="sweep running")
+        self.sweep = status
+
+        def on_point(point) -> None:
+            self.add_sweep_point(point)
+            status.done += 1
+
+        def run() -> None:
+            try:
+                run_sweep(self.acq, angles, settle_s=settle_s, average_s=average_s, on_point=on_point,
+                          stop=status.stop)
+                status.message = "sweep stopped by the operator" if status.stop.is_set() else "sweep done"
+            except (AcquisitionError, ReduceError, ValueError) as exc:
+                status.message = f"sweep ended: {exc}"
+            finally:
+                status.running = False
+                self.notify(status.message)
+
+        threading.Thread(target=run, name="taprig-page-sweep", daemon=True).start()
+        return n
+
+    def add_sweep_point(self, point) -> None:
+        """Add a sweep's point (:class:`taprig.runtime.sweep.SweepPoint`) to the table and the lift curve."""
+        with self._lock:
+            self.points.append(point_summary(len(self.points) + 1, f"sweep α {math.degrees(point.alpha_rad):+.1f}°",
+                                             point.mean, point.alpha_rad))
+
+    def stop_sweep(self) -> None:
+        """Stop the sweep after its current step (the actuators stay where they are; use stop for safe values)."""
+        self.sweep.stop.set()
+
+    # -- display updates -------------------------------------------------------------------------------------
+    def status(self, state: LiveState | None) -> dict:
+        """Link health, setpoints, recording, sweep, points and the board's state for a display update."""
+        return {"mode": "live", "link": self._link(state), "setpoints": self._setpoints(),
+                "recording": self._recording(),
+                "sweep": {"running": self.sweep.running, "done": self.sweep.done, "total": self.sweep.total,
+                          "message": self.sweep.message},
+                "points": len(self.points), "needs_confirmation": self.needs_confirmation,
+                "halt": getattr(self.acq, "halt_reason", None)}
+
+    def _setpoints(self) -> dict:
+        out = {}
+        for a in self.rig.actuators:
+            value = self.acq.setpoints.get(a.name, a.safe)
+            out[a.name] = {"value": num(math.degrees(value) if a.kind is ActuatorKind.ANGLE else value),
+                           "safe": value == a.safe}
+        return out
+
+    def _recording(self) -> dict:
+        writer = self.acq.writer
+        if writer is None:
+            return {"on": False}
+        return {"on": True, "path": str(writer.path), "chunks": writer.committed_chunks, "error": writer.error}
+
+    def _link(self, state: LiveState | None) -> dict:
+        counters = self.acq.link.counters.as_dict()
+        now = time.monotonic()
+        if self._rates is None:
+            self._rates = (now, counters)
+        elif now - self._rates[0] > 0.5:  # per-second rates over at least half a second
+            dt = now - self._rates[0]
+            self._last_rates = {k: (counters.get(k, 0) - self._rates[1].get(k, 0)) / dt for k in ("frames", "bytes")}
+            self._rates = (now, counters)
+        board = self.acq.device_state
+        return {"state": self.acq.link_state, "board": board.name.lower() if isinstance(board, DeviceState) else None,
+                "counters": counters, "rates": self._last_rates,
+                "last_log": self.acq.last_log, "scans": self.acq.scans, "display_skipped": self.acq.display_skipped,
+                "age_s": (time.time_ns() - state.host_ns) / 1e9 if state is not None else None}

@@ -1,0 +1,222 @@
+"""What a viewer is sent: a run's state as plain JSON-able data, built once per display update for every viewer.
+
+Values are SI, as the reducer gives them; the page converts units at its edge. A value that does not hold
+(no flow, an invalid reference, a tap left out) is ``None`` with the reason beside it, never a plausible number:
+JSON has no NaN, and a viewer must not have to guess what one would mean.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from taprig.protocol import ActuatorKind
+from taprig.reduce import ChannelFlag, ReducedMean, ScanFlag
+from taprig.reduce.curves import reference_curves, shape_fit_curve, THIN_AIRFOIL_SLOPE
+
+
+def num(x) -> float | None:
+    """A finite float, else None (JSON has no NaN or infinity)."""
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def nums(values) -> list:
+    """A list of :func:`num` of each value."""
+    return [num(v) for v in np.asarray(values, dtype=float).ravel()]
+
+
+def pair(value, u) -> list | None:
+    """``[value, uncertainty]``, or None when the value is not finite."""
+    v = num(value)
+    return None if v is None else [v, num(u)]
+
+
+# The flow state of a mean, in words, most serious first: what the coefficients' place says instead of a number.
+_FLOW_STATES = (
+    (ScanFlag.REFERENCE_INVALID, "reference invalid",
+     "a channel that q or the freestream static depends on is saturated or not finite"),
+    (ScanFlag.NO_FLOW, "no flow", "q is below what the q sensor can tell from zero"),
+)
+
+
+def flow_state(mean: ReducedMean) -> tuple[str, str]:
+    """``(state, why)``: "flow", or the reason no coefficient can be shown."""
+    counts = mean.scan_flag_counts
+    for flag, state, why in _FLOW_STATES:
+        if mean.flags & flag and counts.get(flag.name, 0) * 2 >= max(mean.n_scans, 1):
+            return state, why
+    if mean.used_scans == 0 or not math.isfinite(mean.q_pa):
+        return "no data", "no usable scans in the window"
+    return "flow", ""
+
+
+def tap_states(mean: ReducedMean, channel_flag_counts: dict[str, dict[str, int]]) -> list:
+    """Per tap (Cp order): "ok", "saturated", "out of range", "left out" or "no value".
+
+    ``channel_flag_counts`` is :meth:`ReducedBlock.channel_flag_counts` (a tap's channel column bears its name).
+    """
+    out = []
+    col = {name: i for i, name in enumerate(mean.column_names)}
+    for name in mean.tap_names:
+        flags = channel_flag_counts.get(name, {})
+        if ChannelFlag.SATURATED.name in flags:
+            out.append("saturated")
+        elif ChannelFlag.OUT_OF_RANGE.name in flags:
+            out.append("out of range")
+        elif name in mean.excluded_taps:
+            out.append("left out")
+        elif name not in col or not math.isfinite(mean.p_pa[col[name]]):
+            out.append("no value")
+        else:
+            out.append("ok")
+    return out
+
+
+def coefficients(mean: ReducedMean) -> dict | None:
+    """The coefficients to show (wall-corrected shape fit where available) with uncertainties and method."""
+    best = mean.corrected or mean.default
+    if best is None:
+        return None
+    return {"method": best.method, "cl": pair(best.cl, best.u_cl), "cd_p": pair(best.cd_p, best.u_cd_p),
+            "cm_qc": pair(best.cm_qc, best.u_cm_qc),
+            "integration_u_cl": num(best.integration_u_cl), "walls": mean.corrected is not None,
+            "alpha_corrected_deg": num(math.degrees(mean.wall.alpha)) if mean.wall is not None else None,
+            "plain_cl": num(mean.plain.cl) if mean.plain is not None else None}
+
+
+def flow_numbers(mean: ReducedMean, density: float) -> dict:
+    """q, V, Re, Mach and ρ with uncertainties where the reduction gives them.
+
+    u(V)/V = u(q)/(2q) and u(Re)/Re = u(V)/V to first order (V = √(2q/ρ); the fluid properties' own uncertainty
+    is not included: JCGM 100:2008 §5.1.2 with ρ and ν held fixed).
+    """
+    rel = mean.u_q_pa / (2.0 * mean.q_pa) if mean.q_pa and math.isfinite(mean.u_q_pa) else math.nan
+    return {"q_pa": pair(mean.q_pa, mean.u_q_pa), "v_ms": pair(mean.v_ms, abs(rel) * mean.v_ms),
+            "re": pair(mean.re, abs(rel) * mean.re), "mach": num(mean.mach), "rho": num(density)}
+
+
+def reading(reducer, mean: ReducedMean, channel_flag_counts: dict, scan_index: tuple[int, int],
+            angle_known: bool = True) -> dict:
+    """The numbers of one display update from the mean of the newest window of scans (see the module docstring).
+
+    ``angle_known``: the run knows the angle of attack (an angle actuator's setpoint); else α is not shown.
+    """
+    state, why = flow_state(mean)
+    flowing = state == "flow"
+    flow = flow_numbers(mean, reducer.fluid.density) if flowing else \
+        {"q_pa": pair(mean.q_pa, mean.u_q_pa), "rho": num(reducer.fluid.density)}
+    flow["alpha_deg"] = num(math.degrees(mean.alpha_rad)) if angle_known else None
+    out = {
+        "window": {"t_ns": list(mean.t_ns), "scan_index": list(scan_index), "scans": mean.n_scans,
+                   "used": mean.used_scans},
+        "state": state, "why": why, "flags": list(mean.flag_names),
+        "flow": flow,
+        "taps": {"p_pa": _tap_pressures(reducer, mean), "cp": nums(mean.cp) if flowing else None,
+                 "u_cp": nums(mean.u_cp) if flowing else None,
+                 "state": tap_states(mean, channel_flag_counts)},
+        "coefficients": coefficients(mean) if flowing else None,
+        "fit": None, "balance": None, "venturi": None,
+    }
+    if flowing:
+        curve = shape_fit_curve(reducer, mean)
+        if curve is not None:
+            out["fit"] = {"x": nums(curve.x), "cp": nums(curve.y), "upper": [bool(u) for u in curve.upper]}
+        if mean.cl_balance is not None:
+            out["balance"] = {"lift_n": num(mean.lift_n), "cl": num(mean.cl_balance)}
+        if mean.mass_flow_kg_s is not None:
+            out["venturi"] = {"mass_flow_kg_s": num(mean.mass_flow_kg_s),
+                              "u_mass_flow_kg_s": num(getattr(mean, "u_mass_flow_kg_s", None)),
+                              "volume_flow_m3_s": num(mean.mass_flow_kg_s / reducer.fluid.density)}
+    return out
+
+
+def _tap_pressures(reducer, mean: ReducedMean) -> dict:
+    """Each tap's mean pressure and its uncertainty [Pa], in Cp order (None where the channel is not streamed)."""
+    col = {name: i for i, name in enumerate(mean.column_names)}
+    p = [num(mean.p_pa[col[t]]) if t in col else None for t in mean.tap_names]
+    u = [num(mean.u_p_pa[col[t]]) if t in col else None for t in mean.tap_names]
+    return {"value": p, "u": u}
+
+
+def rig_description(reducer, calibration_note: str) -> dict:
+    """The parts of the rig a viewer needs once: taps and their places, actuators, theory curves, assumptions."""
+    rig = reducer.rig
+    layout = rig.tap_layout()
+    by_name = {t.name: t for t in rig.taps}
+    taps = []
+    for name in reducer.tap_names:
+        tap = by_name.get(name)
+        taps.append({"name": name, "channel": tap.channel if tap else None,
+                     "x_c": num(tap.x_c) if tap else None,
+                     "surface": tap.surface.value if tap is not None and tap.surface is not None else None,
+                     "x_m": num(tap.x) if tap else None,
+                     "theta_deg": num(math.degrees(tap.theta)) if tap is not None and tap.theta is not None else None})
+    if layout.x_c is not None:  # the section layout gives every tap's x/c (taps given by y only included)
+        for entry, x in zip(taps, layout.x_c):
+            entry["x_c"] = num(x)
+    actuators = [{"name": a.name, "kind": a.kind.name.lower(), "unit": "deg" if a.kind is ActuatorKind.ANGLE else a.unit,
+                  "min": _shown(a, a.min), "max": _shown(a, a.max), "safe": _shown(a, a.safe)} for a in rig.actuators]
+    return {
+        "id": rig.id, "name": rig.name, "kind": rig.kind.value, "medium": rig.fluid.medium.value,
+        "taps": taps, "actuators": actuators,
+        "theory": [{"label": c.label, "x": nums(c.x), "y": nums(c.y)} for c in reference_curves(reducer)],
+        "thin_airfoil_slope_per_rad": THIN_AIRFOIL_SLOPE if rig.kind.value == "airfoil" else None,
+        "assumptions": list(reducer.assumptions), "calibration": calibration_note,
+        "ambient": {"pressure_pa": num(reducer.ambient.pressure), "temperature_k": num(reducer.ambient.temperature),
+                    "relative_humidity": num(reducer.ambient.relative_humidity), "density": num(reducer.fluid.density)},
+        "has_balance": rig.balance is not None and rig.balance.lift is not None,
+        "wall_corrections": bool(reducer.options.wall_corrections and rig.geometry.tunnel_height is not None
+                                 and rig.kind.value == "airfoil"),
+    }
+
+
+def _shown(actuator, value: float) -> float:
+    """An actuator value as the operator sets it: degrees for an angle, the rig file's unit otherwise."""
+    return math.degrees(value) if actuator.kind is ActuatorKind.ANGLE else value
+
+
+def actuator_value_from_operator(actuator, value: float) -> float:
+    """The inverse of :func:`_shown`: an operator's value (degrees for an angle) → taprig's SI value."""
+    return math.radians(value) if actuator.kind is ActuatorKind.ANGLE else value
+
+
+def point_summary(index: int, label: str, mean: ReducedMean, commanded_alpha: float | None) -> dict:
+    """One captured point for the points table and the lift curve."""
+    best = mean.corrected or mean.default
+    state, why = flow_state(mean)
+    corrected = mean.wall.alpha if mean.corrected is not None and mean.wall is not None else None
+    return {"index": index, "label": label, "state": state, "why": why,
+            "alpha_deg": num(math.degrees(mean.alpha_rad)),
+            "alpha_corrected_deg": num(math.degrees(corrected)) if corrected is not None else None,
+            "alpha_set_deg": num(math.degrees(commanded_alpha)) if commanded_alpha is not None else None,
+            "q_pa": pair(mean.q_pa, mean.u_q_pa), "v_ms": num(mean.v_ms), "re": num(mean.re),
+            "cl": pair(best.cl, best.u_cl) if best is not None and state == "flow" else None,
+            "cd_p": pair(best.cd_p, best.u_cd_p) if best is not None and state == "flow" else None,
+            "cm_qc": pair(best.cm_qc, best.u_cm_qc) if best is not None and state == "flow" else None,
+            "cl_balance": num(mean.cl_balance) if state == "flow" else None,
+            "mass_flow_kg_s": num(mean.mass_flow_kg_s) if state == "flow" else None,
+            "flags": list(mean.flag_names)}
+
+
+def point_record_summary(index: int, label: str, record: dict) -> dict:
+    """A point as stored in a session (:func:`taprig.runtime.acquisition.point_record`) for the points table."""
+    best = record.get("corrected") or record.get("shape") or record.get("plain") or {}
+    flags = list(record.get("flags") or [])
+    state = "no flow" if "NO_FLOW" in flags else "reference invalid" if "REFERENCE_INVALID" in flags else "flow"
+    flowing = state == "flow"
+    alpha = record.get("alpha_rad")
+
+    def coeff(name: str):
+        return pair(best.get(name), best.get(f"u_{name}")) if flowing and best else None
+
+    return {"index": index, "label": label, "state": state, "why": "",
+            "alpha_deg": num(math.degrees(alpha)) if alpha is not None else None, "alpha_corrected_deg": None,
+            "alpha_set_deg": None,
+            "q_pa": pair(record.get("q_pa"), record.get("u_q_pa")), "v_ms": num(record.get("v_ms")),
+            "re": num(record.get("re")), "cl": coeff("cl"), "cd_p": coeff("cd_p"), "cm_qc": coeff("cm_qc"),
+            "cl_balance": num(record.get("cl_balance")) if flowing else None,
+            "mass_flow_kg_s": num(record.get("mass_flow_kg_s")) if flowing else None, "flags": flags}
