@@ -1,0 +1,536 @@
+// taprig dashboard. Shows what the server sends (SI values with their uncertainties and states); converts units
+// only at this edge with the factors the server gives; sends one POST per control and shows the board's answer.
+"use strict";
+
+const C = { blue: "#0072B2", vermillion: "#D55E00", orange: "#E69F00", sky: "#56B4E9", green: "#009E73",
+            purple: "#CC79A7", ink: "#111111", grey: "#888888" };
+
+const params = new URLSearchParams(location.search);
+const key = params.get("key") || sessionStorage.getItem("taprig.key") || "";
+if (params.get("key")) {               // keep the key for this tab, out of the address bar and of shared screenshots
+  sessionStorage.setItem("taprig.key", key);
+  params.delete("key");
+  history.replaceState(null, "", location.pathname + (params.toString() ? "?" + params : ""));
+}
+let source = params.get("source") || "live";
+
+const $ = (id) => document.getElementById(id);
+const stats = { frames: 0, latencies: [], lastSeq: 0, drawn: 0 };  // read by the browser tests and the benchmark
+window.taprig = stats;
+
+let rig = null, role = null, lastFrame = null, charts = {}, unit = localStorage.getItem("taprig.unit") || "Pa";
+let trend = [];          // [t_s, q, cl] rows
+let pointsVersion = -1;
+
+// ---- numbers with their uncertainty -------------------------------------------------------------------------
+function sig(u) { return u > 0 && isFinite(u) ? Math.max(0, 1 - Math.floor(Math.log10(u))) : 3; }
+function fmtU(p, unitText = "", scale = 1) {
+  if (!p || p[0] === null) return null;
+  const v = p[0] * scale, u = p[1] === null ? null : Math.abs(p[1] * scale);
+  if (u === null) return `${fmt(v)} ${unitText} (uncertainty not available)`;
+  const d = Math.min(sig(u), 6);
+  return `${v.toFixed(d)} ± ${u.toFixed(d)}${unitText ? " " + unitText : ""}`;
+}
+function fmt(v, d = 3) {
+  if (v === null || v === undefined || !isFinite(v)) return "–";
+  const a = Math.abs(v);
+  if (a !== 0 && (a >= 1e5 || a < 1e-3)) return v.toExponential(2);
+  return v.toFixed(a >= 100 ? 1 : d);
+}
+function setNum(id, text, why) {
+  const el = $(id);
+  if (text === null || text === undefined) { el.textContent = why || "–"; el.classList.add("unavailable"); }
+  else { el.textContent = text; el.classList.remove("unavailable"); }
+}
+
+// ---- talking to the server ----------------------------------------------------------------------------------
+async function api(path, body) {
+  const opts = { headers: { "X-Taprig-Key": key } };
+  if (body !== undefined) {
+    opts.method = "POST";
+    opts.headers["Content-Type"] = "application/json";
+    opts.body = JSON.stringify(body);
+  }
+  let resp;
+  try { resp = await fetch(path, opts); } catch (e) { throw new Error("taprig does not answer (is it still running?)"); }
+  const data = await resp.json().catch(() => ({ error: `unexpected answer (${resp.status})` }));
+  if (!resp.ok) throw new Error(data.error || `refused (${resp.status})`);
+  return data;
+}
+function say(text, error = false) { const m = $("message"); m.textContent = text; m.classList.toggle("error", error); }
+async function control(action, body = {}, what = "") {
+  try {
+    const out = await api(`/api/live/${action}`, body);
+    if (what) say(what);
+    return out;
+  } catch (e) { say(e.message, true); return null; }
+}
+
+// ---- charts (uPlot) -----------------------------------------------------------------------------------------
+// Error bars: each series may carry an array of half-widths in series.err (same length as the data).
+function errorBars() {
+  return { hooks: { draw: [(u) => {
+    const ctx = u.ctx;
+    u.series.forEach((s, si) => {
+      if (!si || !s.show || !s.err) return;
+      const xs = u.data[0], ys = u.data[si];
+      ctx.save(); ctx.strokeStyle = s._stroke || C.ink; ctx.lineWidth = 1.5 * devicePixelRatio;
+      for (let i = 0; i < xs.length; i++) {
+        const y = ys[i], e = s.err[i];
+        if (y === null || e === null || e === undefined) continue;
+        const cx = u.valToPos(xs[i], "x", true), y0 = u.valToPos(y - e, s.scale, true), y1 = u.valToPos(y + e, s.scale, true);
+        const w = 4 * devicePixelRatio;
+        ctx.beginPath(); ctx.moveTo(cx, y0); ctx.lineTo(cx, y1); ctx.moveTo(cx - w, y0); ctx.lineTo(cx + w, y0);
+        ctx.moveTo(cx - w, y1); ctx.lineTo(cx + w, y1); ctx.stroke();
+      }
+      ctx.restore();
+    });
+  }] } };
+}
+// Marks on flagged taps: a cross and the state's first letter above the bar.
+function tapMarks() {
+  return { hooks: { draw: [(u) => {
+    const states = u._states; if (!states) return;
+    const ctx = u.ctx; ctx.save(); ctx.fillStyle = C.ink; ctx.font = `${13 * devicePixelRatio}px sans-serif`; ctx.textAlign = "center";
+    states.forEach((st, i) => {
+      if (st === "ok") return;
+      const x = u.valToPos(i, "x", true), y = u.bbox.top + 14 * devicePixelRatio;
+      ctx.fillText(st === "saturated" ? "✕ sat" : st === "out of range" ? "✕ range" : st === "left out" ? "– out" : "?", x, y);
+    });
+    ctx.restore();
+  }] } };
+}
+function sizeOf(el) { const w = Math.max(300, el.clientWidth - 4); return { width: w, height: Math.round(Math.min(340, Math.max(220, w * 0.5))) }; }
+const axisFont = "14px system-ui, sans-serif";
+function axis(label, extra = {}) { return { label, labelFont: "bold 14px system-ui, sans-serif", font: axisFont, stroke: C.ink, grid: { stroke: "#ddd" }, size: 56, labelSize: 22, ...extra }; }
+function pts(stroke, fill, shape, size = 9) {
+  return { stroke, fill, width: 0, paths: () => null, points: { show: true, size, width: 2, stroke, fill }, _stroke: stroke, _shape: shape };
+}
+
+function makeCpChart() {
+  const el = $("cp-chart"), kind = rig.kind, series = [{}];
+  let xlabel = "x/c [-]", legend;
+  if (kind === "venturi") {
+    xlabel = "axial station x [mm]";
+    series.push({ label: "measured Cp", ...pts(C.blue, C.blue), scale: "cp" });
+    series.push({ label: rig.theory[0] ? rig.theory[0].label : "ideal", stroke: C.ink, width: 2, dash: [8, 5], scale: "cp", points: { show: false } });
+    legend = "● measured Cp with its uncertainty; dashed: ideal station Cp from continuity and Bernoulli (theory).";
+  } else if (kind === "cylinder") {
+    xlabel = "angle from the front θ [°]";
+    series.push({ label: "measured Cp", ...pts(C.blue, C.blue), scale: "cp" });
+    series.push({ label: "potential flow", stroke: C.ink, width: 2, dash: [8, 5], scale: "cp", points: { show: false } });
+    legend = "● measured Cp with its uncertainty; dashed: potential flow 1 − 4 sin²θ (theory).";
+  } else {
+    series.push({ label: "upper surface", ...pts(C.blue, C.blue), scale: "cp" });
+    series.push({ label: "lower surface", ...pts(C.vermillion, "#fff"), scale: "cp" });
+    series.push({ label: "fit, upper", stroke: C.blue, width: 2.5, scale: "cp", spanGaps: true, points: { show: false } });
+    series.push({ label: "fit, lower", stroke: C.vermillion, width: 2.5, dash: [10, 5], scale: "cp", spanGaps: true, points: { show: false } });
+    legend = "● filled: upper surface; ○ open: lower surface; bars: ±1 standard uncertainty; solid / dashed: the shape fit the integrator uses. Negative Cp up.";
+  }
+  $("cp-legend").textContent = legend;
+  $("cp-title").textContent = kind === "venturi" ? "Pressure coefficient along the venturi" :
+    kind === "cylinder" ? "Pressure coefficient round the cylinder" : "Pressure coefficient along the chord";
+  const opts = { ...sizeOf(el), legend: { show: true, live: false }, cursor: { show: false },
+    scales: { x: { time: false }, cp: { dir: kind === "venturi" ? 1 : -1, auto: true } },
+    axes: [axis(xlabel), axis("Cp [-]", { scale: "cp" })], series, plugins: [errorBars()] };
+  charts.cp = new uPlot(opts, series.map(() => []), el);
+}
+
+function makeTapChart() {
+  const el = $("tap-chart"), n = rig.taps.length;
+  const series = [{}, { label: "tap", stroke: C.sky, fill: C.sky + "cc", width: 1, paths: uPlot.paths.bars({ size: [0.7, 60] }), points: { show: false }, _stroke: C.ink }];
+  const opts = { ...sizeOf(el), legend: { show: false }, cursor: { show: false },
+    scales: { x: { time: false, range: [-0.6, n - 0.4] }, y: { auto: true } },
+    axes: [axis("tap", { values: (u, vals) => vals.map((v) => (Number.isInteger(v) && rig.taps[v] ? rig.taps[v].name : "")), space: 40, rotate: 0 }),
+           axis(unitLabel())], series, plugins: [errorBars(), tapMarks()] };
+  charts.tap = new uPlot(opts, [[...Array(n).keys()], Array(n).fill(null)], el);
+}
+function unitLabel() { return unit === "Cp" ? "Cp [-]" : `p − room [${unit}]`; }
+
+function makeTrendChart() {
+  const el = $("trend-chart");
+  const series = [{}, { label: "q [Pa]", stroke: C.blue, width: 2.5, scale: "q", spanGaps: false, points: { show: false } },
+                      { label: "Cl", stroke: C.vermillion, width: 2.5, dash: [10, 5], scale: "cl", spanGaps: false, points: { show: false }, show: rig.kind === "airfoil" }];
+  const opts = { ...sizeOf(el), legend: { show: true, live: false }, cursor: { show: false },
+    scales: { x: { time: false }, q: { auto: true }, cl: { auto: true } },
+    axes: [axis("time [s] (0 = now)"), axis("q [Pa]", { scale: "q" }),
+           ...(rig.kind === "airfoil" ? [axis("Cl [-]", { scale: "cl", side: 1, grid: { show: false } })] : [])],
+    series };
+  charts.trend = new uPlot(opts, [[], [], []], el);
+}
+
+function makeLiftChart() {
+  const el = $("lift-chart");
+  const series = [{}, { label: "Cl (pressures)", ...pts(C.blue, C.blue), scale: "cl" },
+    { label: "Cl (balance)", ...pts(C.green, "#fff", "triangle", 10), scale: "cl" },
+    { label: "thin-airfoil 2π", stroke: C.ink, width: 2, dash: [8, 5], scale: "cl", spanGaps: true, points: { show: false } },
+    { label: "stall", stroke: C.orange, width: 3, dash: [3, 4], scale: "cl", spanGaps: true, points: { show: false } }];
+  const opts = { ...sizeOf(el), legend: { show: true, live: false }, cursor: { show: false },
+    scales: { x: { time: false }, cl: { auto: true } },
+    axes: [axis("α [°]"), axis("Cl [-]", { scale: "cl" })], series, plugins: [errorBars()] };
+  charts.lift = new uPlot(opts, series.map(() => []), el);
+}
+
+// ---- drawing a frame ----------------------------------------------------------------------------------------
+function drawCp(r) {
+  const ch = charts.cp, taps = rig.taps, kind = rig.kind;
+  const cp = r && r.taps.cp, u = r && r.taps.u_cp;
+  if (kind === "venturi" || kind === "cylinder") {
+    const xs = taps.map((t) => kind === "venturi" ? t.x_m * 1000 : t.theta_deg);
+    const th = rig.theory[0];
+    const tx = th ? th.x.map((x) => kind === "venturi" ? x * 1000 : x) : [];
+    const all = [...new Set([...xs, ...tx])].sort((a, b) => a - b);
+    const at = (arrX, arrY) => { const m = new Map(); arrX.forEach((x, i) => m.set(x, arrY[i])); return all.map((x) => (m.has(x) ? m.get(x) : null)); };
+    const meas = at(xs, cp || xs.map(() => null)), err = at(xs, u || xs.map(() => null));
+    ch.series[1].err = err;
+    ch.setData([all, meas, th ? at(tx, th.y) : all.map(() => null)]);
+    return;
+  }
+  const up = [], lo = [];
+  taps.forEach((t, i) => (t.surface === "lower" ? lo : up).push(i));
+  const fit = r && r.fit;
+  const xsT = taps.map((t) => t.x_c);
+  const fx = fit ? fit.x : [];
+  const all = [...new Set([...xsT, ...fx])].sort((a, b) => a - b);
+  const idx = new Map(all.map((x, i) => [x, i]));
+  const col = () => all.map(() => null);
+  const sU = col(), sL = col(), eU = col(), eL = col(), fU = col(), fL = col();
+  if (cp) taps.forEach((t, i) => {
+    const j = idx.get(t.x_c); if (j === undefined || cp[i] === null) return;
+    if (t.surface === "lower") { sL[j] = cp[i]; eL[j] = u ? u[i] : null; } else { sU[j] = cp[i]; eU[j] = u ? u[i] : null; }
+  });
+  if (fit) fit.x.forEach((x, k) => { const j = idx.get(x); (fit.upper[k] ? fU : fL)[j] = fit.cp[k]; });
+  ch.series[1].err = eU; ch.series[2].err = eL;
+  ch.setData([all, sU, sL, fU, fL]);
+}
+
+function drawTaps(r) {
+  const ch = charts.tap, n = rig.taps.length;
+  let vals = Array(n).fill(null), errs = Array(n).fill(null);
+  if (r) {
+    if (unit === "Cp") { if (r.taps.cp) { vals = r.taps.cp; errs = r.taps.u_cp; } }
+    else {
+      const f = rig.units[unit] || 1;
+      vals = r.taps.p_pa.value.map((v) => (v === null ? null : v * f));
+      errs = r.taps.p_pa.u.map((v) => (v === null ? null : v * f));
+    }
+    ch._states = r.taps.state;
+  }
+  ch.series[1].err = errs;
+  ch.setData([[...Array(n).keys()], vals]);
+  $("tap-legend").textContent = (unit === "Cp" && r && !r.taps.cp) ? `No Cp: ${r.state} (${r.why}).` :
+    "bars: ±1 standard uncertainty; ✕ sat: at the converter's rails (left out); ✕ range: beyond the sensor's rated range; – out: left out of the integral.";
+}
+
+function drawTrend() {
+  if (!trend.length) return;
+  const now = trend[trend.length - 1][0];
+  const keep = trend.filter((row) => now - row[0] <= 300);
+  trend = keep;
+  charts.trend.setData([keep.map((r) => r[0] - now), keep.map((r) => r[1]), keep.map((r) => r[2])]);
+}
+
+function drawReadings(f) {
+  const r = f.reading;
+  const sw = $("state-word");
+  const showCoeff = r && r.state === "flow";
+  if (!r) { sw.hidden = false; sw.textContent = "no data yet"; }
+  else if (r.state !== "flow") { sw.hidden = false; sw.textContent = `${r.state.toUpperCase()}: ${r.why}`; }
+  else sw.hidden = true;
+  $("window-note").textContent = r ? `mean of ${r.window.used} scans` : "";
+  const fl = r ? r.flow : {};
+  setNum("n-q", r ? fmtU(fl.q_pa, "Pa") : null, r ? r.state : "no data");
+  setNum("n-v", showCoeff ? fmtU(fl.v_ms, "m/s") : null, r ? r.state : "–");
+  setNum("n-re", showCoeff && fl.re ? `${fl.re[0].toExponential(3)} ± ${fl.re[1] !== null ? fl.re[1].toExponential(1) : "?"}` : null, r ? r.state : "–");
+  setNum("n-mach", showCoeff && fl.mach !== null && fl.mach !== undefined ? fl.mach.toFixed(4) : null, rig.medium === "water" ? "n/a in water" : (r ? r.state : "–"));
+  setNum("n-rho", r && fl.rho ? `${fl.rho.toFixed(4)} kg/m³ (from room conditions)` : null);
+  setNum("n-alpha", r && fl.alpha_deg !== null && fl.alpha_deg !== undefined ? `${fl.alpha_deg.toFixed(2)}° (set)` : null,
+         rig.actuators.some((a) => a.kind === "angle") ? "–" : "fixed (no angle actuator)");
+  const c = r && r.coefficients;
+  const why = r ? (r.state === "flow" ? "no integral for this rig" : r.state) : "no data";
+  setNum("n-cl", c ? fmtU(c.cl) : null, why);
+  setNum("n-cd", c ? fmtU(c.cd_p) : null, why);
+  setNum("n-cm", c ? fmtU(c.cm_qc) : null, why);
+  const bal = r && r.balance;
+  document.querySelectorAll(".bal").forEach((e) => (e.hidden = !(rig.has_balance)));
+  if (rig.has_balance) setNum("n-clb", bal && bal.cl !== null ? `${bal.cl.toFixed(3)} (${fmt(bal.lift_n)} N)` : null, why);
+  const ven = r && r.venturi;
+  document.querySelectorAll(".ven").forEach((e) => (e.hidden = rig.kind !== "venturi"));
+  if (rig.kind === "venturi") {
+    setNum("n-mdot", ven ? fmtU([ven.mass_flow_kg_s * 1000, ven.u_mass_flow_kg_s === null ? null : ven.u_mass_flow_kg_s * 1000], "g/s") : null, why);
+    setNum("n-qv", ven && ven.volume_flow_m3_s !== null ? `${(ven.volume_flow_m3_s * 1000).toFixed(3)} L/s` : null, why);
+  }
+  const extra = [];
+  if (c) extra.push(`coefficients: ${c.method}${c.walls ? ` (wall-corrected; α corrected ${fmt(c.alpha_corrected_deg)}°)` : ""}; trapezoid Cl ${fmt(c.plain_cl)}`);
+  if (r && r.flags.length) extra.push(`flags: ${r.flags.join(", ")}`);
+  renderAssumptions(extra);
+}
+
+function renderAssumptions(extra = []) {
+  const ul = $("assumptions"); ul.replaceChildren();
+  const lines = [...rig.assumptions, `calibration: ${rig.calibration}`,
+    `wall corrections: ${rig.wall_corrections ? "on (2-D, solid and wake blockage, streamline curvature)" : "off"}`,
+    `air: ${fmt(rig.ambient.pressure_pa / 100, 1)} hPa, ${fmt(rig.ambient.temperature_k - 273.15, 1)} °C, ρ ${fmt(rig.ambient.density, 4)} kg/m³`, ...extra];
+  for (const l of lines) { const li = document.createElement("li"); li.textContent = l; ul.appendChild(li); }
+}
+
+function chip(id, text, cls) { const el = $(id); el.textContent = text; el.className = "state " + (cls || ""); }
+
+function drawStatus(f) {
+  const r = f.reading, link = f.link || {};
+  const age = link.age_s;
+  const stale = f.mode === "live" && (age === null || age > 1.0);
+  chip("st-flow", r ? (r.state === "flow" ? "FLOW" : r.state.toUpperCase()) : "NO DATA", r && r.state === "flow" ? "good" : "warn");
+  if (f.mode === "replay") chip("st-rec", "REPLAY", "good");
+  else chip("st-rec", f.recording && f.recording.on ? (f.recording.error ? "NOT RECORDING" : "● REC") : "not recording",
+            f.recording && f.recording.on ? (f.recording.error ? "bad" : "on") : "");
+  const ls = link.state || "–";
+  chip("st-link", `link ${ls}`, ["connected", "restored", "replay"].includes(ls) ? "good" : "bad");
+  const b = link.board;
+  chip("st-board", b ? `board ${b}` : (f.mode === "replay" ? "recorded" : "board –"), b === "safe" ? "bad" : b === "streaming" ? "good" : "");
+  const ageEl = $("st-age");
+  ageEl.hidden = !stale; if (stale) chip("st-age", age === null ? "no data" : `data ${age.toFixed(1)} s old`, "bad");
+  document.querySelectorAll(".live-plot").forEach((p) => p.classList.toggle("stale", stale || !r || r.state !== "flow"));
+  $("halt").hidden = !f.halt; if (f.halt) $("halt-text").textContent = `The board went safe on its own: ${f.halt}. Nothing is sent until you resume.`;
+  const c = link.counters || {};
+  $("l-fps").textContent = link.rates && link.rates.frames !== undefined ? link.rates.frames.toFixed(0) : "–";
+  $("l-crc").textContent = c.crc_errors ?? "–"; $("l-gaps").textContent = c.gaps ?? "–"; $("l-lost").textContent = c.scans_lost ?? "–";
+  $("l-log").textContent = link.last_log || "–";
+  const lat = stats.latencies.slice(-200).sort((a, b) => a - b);
+  $("l-lat").textContent = lat.length ? `${lat[Math.floor(lat.length / 2)].toFixed(0)} ms (arrival at the host → drawn here)` : "–";
+  if (f.notices && f.notices.length) {
+    const n = f.notices[f.notices.length - 1];
+    if (n.host_ns !== stats.lastNotice) { stats.lastNotice = n.host_ns; say(n.text, /fail|ended|refus|cannot/.test(n.text)); }
+  }
+  if (f.mode === "live") drawControls(f); else drawPlayback(f);
+}
+
+function drawControls(f) {
+  for (const a of rig.actuators) {
+    const now = $(`now-${a.name}`); const sp = f.setpoints[a.name];
+    if (now && sp) now.textContent = `now ${fmt(sp.value)} ${a.unit}${sp.safe ? " (safe value)" : ""} — acknowledged by the board`;
+  }
+  $("b-record").textContent = f.recording && f.recording.on ? "Stop recording" : "Start recording";
+  $("b-record").disabled = !rig.can_record;
+  const sw = f.sweep || {};
+  $("sweep-state").textContent = sw.running ? `${sw.done} of ${sw.total} points` : (sw.message || "");
+  $("b-sweep").disabled = !!sw.running; $("b-sweep-stop").disabled = !sw.running;
+}
+
+function drawPlayback(f) {
+  const p = f.playback; if (!p) return;
+  $("pb-play").textContent = p.playing ? "Pause" : "Play";
+  $("pb-pos").textContent = `${fmt(p.position_s, 1)} of ${fmt(p.duration_s, 1)} s${p.finished ? " (end)" : ""}${p.error ? " — " + p.error : ""}`;
+  const seek = $("pb-seek"); if (document.activeElement !== seek) seek.value = p.position_s || 0;
+}
+
+function onFrame(f) {
+  stats.frames++; stats.lastSeq = f.seq; lastFrame = f;
+  if (f.trend && (!trend.length || f.trend[0] / 1e9 > trend[trend.length - 1][0])) trend.push([f.trend[0] / 1e9, f.trend[1], f.trend[2]]);
+  drawStatus(f); drawReadings(f); drawCp(f.reading); drawTaps(f.reading); drawTrend();
+  if (f.points !== pointsVersion) { pointsVersion = f.points; loadPoints(); }
+  if (f.host_ns && f.mode === "live") {
+    requestAnimationFrame(() => {
+      const drawnMs = performance.timeOrigin + performance.now();
+      stats.latencies.push(drawnMs - f.host_ns / 1e6);
+      if (stats.latencies.length > 5000) stats.latencies.splice(0, 1000);
+      stats.drawn++;
+      stats.lastDrawn = { seq: f.seq, window: f.reading && f.reading.window, cl: $("n-cl").textContent, q: $("n-q").textContent };
+    });
+  }
+}
+
+// ---- points and lift curve ----------------------------------------------------------------------------------
+async function loadPoints() {
+  let data; try { data = await api(`/api/${source}/points`); } catch (e) { return; }
+  const tb = document.querySelector("#points tbody"); tb.replaceChildren();
+  for (const p of data.points) {
+    const tr = document.createElement("tr");
+    const cells = [p.index, p.label, fmt(p.alpha_deg, 2), p.q_pa ? fmtU(p.q_pa) : "–", p.cl ? fmtU(p.cl) : p.state,
+                   p.cd_p ? fmtU(p.cd_p) : "–", p.cm_qc ? fmtU(p.cm_qc) : "–", p.state + (p.flags.length ? ` (${p.flags.join(", ")})` : "")];
+    for (const c of cells) { const td = document.createElement("td"); td.textContent = c; tr.appendChild(td); }
+    tb.appendChild(tr);
+  }
+  drawLift(data);
+}
+
+function drawLift(data) {
+  const usable = data.points.filter((p) => p.cl && p.alpha_deg !== null)
+    .map((p) => ({ a: p.alpha_corrected_deg ?? p.alpha_deg, cl: p.cl[0], u: p.cl[1], b: p.cl_balance }));
+  usable.sort((x, y) => x.a - y.a);
+  const lc = data.lift_curve;
+  const xs = usable.map((p) => p.a);
+  const lo = xs.length ? Math.min(...xs) : -5, hi = xs.length ? Math.max(...xs) : 15;
+  const all = [...xs, lo, hi].sort((a, b) => a - b);
+  const a0 = lc && lc.alpha_zero_lift_deg !== null ? lc.alpha_zero_lift_deg : 0;
+  const slope = rig.thin_airfoil_slope_per_rad ? rig.thin_airfoil_slope_per_rad * Math.PI / 180 : null;
+  const map = (fn) => all.map(fn);
+  const cl = [], err = [], bal = [];
+  const used = new Set();
+  all.forEach((x) => {
+    const i = usable.findIndex((p, j) => !used.has(j) && p.a === x);
+    if (i >= 0) { used.add(i); cl.push(usable[i].cl); err.push(usable[i].u); bal.push(usable[i].b ?? null); } else { cl.push(null); err.push(null); bal.push(null); }
+  });
+  const theory = slope ? map((x) => slope * (x - a0)) : map(() => null);
+  const stall = map(() => null);
+  if (lc && lc.stalled) { const j = all.findIndex((x) => x === lc.alpha_cl_max_deg); if (j >= 0) stall[j] = lc.cl_max; }
+  charts.lift.series[1].err = err;
+  charts.lift.setData([all, cl, bal, theory, stall]);
+  $("lift-legend").textContent = lc ? `lift slope ${fmt(lc.slope_per_deg, 4)} ± ${fmt(lc.u_slope_per_deg, 4)} per degree (scatter about the line) over ${fmt(lc.linear_range_deg[0], 1)}…${fmt(lc.linear_range_deg[1], 1)}°; zero lift at ${fmt(lc.alpha_zero_lift_deg, 2)}°; ` +
+    (lc.stalled ? `stall at ${fmt(lc.alpha_cl_max_deg, 1)}°, Cl max ${fmt(lc.cl_max)}` : `no stall yet (Cl max ${fmt(lc.cl_max)})`) +
+    (slope ? `. Dashed: thin-airfoil theory, 2π per radian (${(slope).toFixed(4)} per degree) through the measured zero-lift angle.` : "")
+    : "Capture three or more points with flow for a lift curve. Bars: ±1 standard uncertainty.";
+}
+
+// ---- controls -----------------------------------------------------------------------------------------------
+async function confirmFirst() {
+  if (!lastFrame || !lastFrame.needs_confirmation) return true;
+  const dlg = $("confirm");
+  $("confirm-text").textContent = rig.safety;
+  dlg.showModal();
+  const answer = await new Promise((res) => dlg.addEventListener("close", () => res(dlg.returnValue), { once: true }));
+  if (answer !== "yes") { say("nothing moved"); return false; }
+  return (await control("confirm")) !== null;
+}
+async function setActuator(a, value) {
+  if (!(await confirmFirst())) return;
+  const out = await control("setpoint", { actuator: a.name, value: Number(value) });
+  if (out) say(`${a.name} → ${value} ${a.unit}: acknowledged by the board`);
+}
+function buildControls() {
+  $("safety").textContent = rig.safety;
+  const box = $("actuators"); box.replaceChildren();
+  for (const a of rig.actuators) {
+    const row = document.createElement("div"); row.className = "actuator";
+    const label = document.createElement("label"); label.textContent = `${a.name} (${a.kind}) [${fmt(a.min)} … ${fmt(a.max)} ${a.unit}]`;
+    const input = document.createElement("input"); Object.assign(input, { type: "number", min: a.min, max: a.max, step: a.kind === "angle" ? 0.5 : (a.max - a.min) / 100, value: a.safe, id: `in-${a.name}` });
+    label.htmlFor = input.id;
+    const set = document.createElement("button"); set.textContent = "Set";
+    set.addEventListener("click", () => {
+      const v = Number(input.value);
+      if (!(v >= a.min && v <= a.max)) { say(`${a.name}: ${input.value} is outside ${a.min} … ${a.max} ${a.unit}`, true); return; }
+      setActuator(a, v);
+    });
+    input.addEventListener("input", () => (set.textContent = `Set ${a.name} → ${input.value}`));
+    const now = document.createElement("div"); now.className = "now"; now.id = `now-${a.name}`;
+    row.append(label, input, set, now); box.appendChild(row);
+  }
+  const servo = rig.actuators.find((a) => a.kind === "angle");
+  $("sweep").hidden = !servo;
+  if (servo) { $("sw-from").value = Math.max(servo.min, -4); $("sw-to").value = Math.min(servo.max, 12); }
+  $("b-zero").onclick = () => control("zero", {}, "wind-off zero taken");
+  $("b-capture").onclick = async () => { const o = await control("capture", { seconds: 1.0 }); if (o) say(`point ${o.point.index} captured (${o.point.state})`); };
+  $("b-record").onclick = async () => {
+    const on = lastFrame && lastFrame.recording && lastFrame.recording.on;
+    const o = await control(on ? "record-stop" : "record-start");
+    if (o) say(on ? `recording stopped: ${o.path}` : `recording to ${o.path}`);
+  };
+  $("b-note").onclick = async () => { const t = $("note").value.trim(); if (!t) return; if (await control("note", { text: t })) { $("note").value = ""; } };
+  $("b-sweep").onclick = async () => {
+    if (!(await confirmFirst())) return;
+    const o = await control("sweep-start", { from_deg: +$("sw-from").value, to_deg: +$("sw-to").value, step_deg: +$("sw-step").value,
+                                             settle_s: +$("sw-settle").value, average_s: +$("sw-avg").value });
+    if (o) say(`sweep of ${o.angles} angles started`);
+  };
+  $("b-sweep-stop").onclick = () => control("sweep-stop", {}, "sweep stops after its current step");
+  $("stop").onclick = stopAll;
+  $("resume").onclick = () => control("resume", {}, "control resumed: set the fan and the angle again");
+}
+async function stopAll() {
+  const o = await control("stop");
+  if (o) say(o.failed.length ? `STOP sent; not acknowledged: ${o.failed.join("; ")}` : "STOP: every actuator at its safe value (acknowledged)", !!o.failed.length);
+}
+
+function buildPlayback() {
+  const s = rig.session; $("pb-file").textContent = s.path;
+  const sel = $("pb-speed"); sel.replaceChildren();
+  for (const v of s.speeds) { const o = document.createElement("option"); o.value = v; o.textContent = v === 0 ? "as fast as possible" : `${v}×`; if (v === 1) o.selected = true; sel.appendChild(o); }
+  const seek = $("pb-seek"); seek.max = s.duration_s;
+  const pb = (action, body = {}) => api(`/api/${source}/playback/${action}`, body).catch((e) => say(e.message, true));
+  $("pb-play").onclick = () => pb(lastFrame && lastFrame.playback && lastFrame.playback.playing ? "pause" : "play");
+  sel.onchange = () => pb("speed", { speed: Number(sel.value) });
+  seek.onchange = () => pb("seek", { seconds: Number(seek.value) });
+  $("pb-own").onclick = () => pb("recalibrate", { calibration: null });
+  $("pb-cal").onchange = async () => {
+    const file = $("pb-cal").files[0]; if (!file) return;
+    const text = await file.text();
+    pb("recalibrate", { calibration: text, name: file.name });
+  };
+}
+
+async function loadSessions() {
+  let data; try { data = await api("/api/sessions"); } catch (e) { say(e.message, true); return; }
+  $("sessions-folder").textContent = data.folder;
+  const tb = document.querySelector("#sessions tbody"); tb.replaceChildren();
+  for (const s of data.sessions) {
+    const tr = document.createElement("tr");
+    const cells = [s.name, s.rig || "", (s.started_utc || "").replace("T", " ").slice(0, 19), s.problem ? s.problem : `${fmt(s.duration_s, 1)} s`, s.points ?? ""];
+    for (const c of cells) { const td = document.createElement("td"); td.textContent = c; tr.appendChild(td); }
+    const td = document.createElement("td");
+    if (!s.problem) {
+      const open = document.createElement("button"); open.textContent = "Replay";
+      open.onclick = async () => { try { const o = await api("/api/sessions/open", { name: s.name }); window.open(`/?source=${o.source}`, "_blank"); } catch (e) { say(e.message, true); } };
+      td.appendChild(open);
+      for (const fmtName of ["csv", "parquet"]) {
+        const b = document.createElement("button"); b.textContent = fmtName.toUpperCase();
+        b.onclick = async () => { say(`exporting ${s.name} …`); try { const o = await api("/api/sessions/export", { name: s.name, format: fmtName }); say(`written: ${o.path}`); } catch (e) { say(e.message, true); } };
+        td.appendChild(b);
+      }
+      if (role !== "control") td.replaceChildren(open);
+    }
+    tr.appendChild(td); tb.appendChild(tr);
+  }
+}
+
+function keys() {
+  const ul = $("keys"); ul.replaceChildren();
+  for (const [k, what] of Object.entries(rig.shortcuts)) {
+    if (role !== "control") continue;
+    const li = document.createElement("li"); const kb = document.createElement("kbd"); kb.textContent = k === "Escape" ? "Esc" : k;
+    li.append(kb, ` ${what}`); ul.appendChild(li);
+  }
+  if (role !== "control") ul.innerHTML = "<li>view-only link: this page cannot change anything on the rig</li>";
+  document.addEventListener("keydown", (e) => {
+    if (role !== "control") return;
+    if (e.key === "Escape" && rig.mode === "live") { e.preventDefault(); stopAll(); return; }
+    if (e.target.closest("input, textarea, select") || e.ctrlKey || e.metaKey || e.altKey) return;
+    const act = { z: () => $("b-zero").click(), c: () => $("b-capture").click(), r: () => $("b-record").click(),
+                  n: () => $("note").focus(), p: () => $("pb-play").click() }[e.key];
+    if (act) { e.preventDefault(); act(); }
+  });
+}
+
+// ---- start --------------------------------------------------------------------------------------------------
+async function start() {
+  try { rig = await api(`/api/${source}/describe`); }
+  catch (e) {                      // no such display (a sessions-only server, or a replay closed since): the list
+    say(e.message, true);
+    try { await api("/api/sessions"); $("sessions-card").hidden = false; $("rig-name").textContent = "sessions";
+          $("sessions-refresh").onclick = loadSessions; loadSessions(); } catch (e2) { /* the message says why */ }
+    return;
+  }
+  role = rig.role; rig.mode = rig.session ? "replay" : "live";
+  $("rig-name").textContent = rig.name; $("mode").textContent = rig.mode === "live" ? (rig.real_board ? "live" : "live, simulated rig") : "replay";
+  document.title = `taprig — ${rig.name}`;
+  const units = document.getElementById("unit");
+  for (const u of [...Object.keys(rig.units), "Cp"]) { const o = document.createElement("option"); o.value = o.textContent = u; units.appendChild(o); }
+  if (![...Object.keys(rig.units), "Cp"].includes(unit)) unit = "Pa";
+  units.value = unit;
+  units.onchange = () => { unit = units.value; localStorage.setItem("taprig.unit", unit); charts.tap.axes[1].label = unitLabel(); charts.tap.redraw(false, true); if (lastFrame) drawTaps(lastFrame.reading); };
+  $("lift-card").hidden = rig.kind !== "airfoil";
+  const integral = ["airfoil", "cylinder", "bump"].includes(rig.kind);
+  document.querySelectorAll(".sect").forEach((e) => { e.hidden = !integral; e.nextElementSibling.hidden = !integral; });
+  makeCpChart(); makeTapChart(); makeTrendChart(); makeLiftChart();
+  renderAssumptions();
+  if (role === "control" && rig.mode === "live") { $("controls").hidden = false; $("stop").hidden = false; buildControls(); }
+  if (rig.mode === "replay") { $("playback").hidden = false; buildPlayback(); $("playback").querySelectorAll("button, select, input").forEach((e) => (e.disabled = role !== "control")); }
+  if (rig.sessions) { $("sessions-card").hidden = false; $("sessions-refresh").onclick = loadSessions; loadSessions(); }
+  keys();
+  try { const t = await api(`/api/${source}/trend`); trend = t.trend.map((r) => [r[0] / 1e9, r[1], r[2]]); } catch (e) { }
+  const es = new EventSource(`/api/${source}/stream?key=${encodeURIComponent(key)}`);
+  es.onmessage = (ev) => { try { onFrame(JSON.parse(ev.data)); } catch (e) { say(`display error: ${e.message}`, true); } };
+  es.onerror = () => { say("connection to taprig lost — retrying (has the run ended?)", true); chip("st-link", "page offline", "bad"); };
+  es.addEventListener("closed", () => { es.close(); say("the run has ended: this page shows its last state", true); });
+  window.addEventListener("resize", () => { for (const [id, ch] of Object.entries(charts)) ch.setSize(sizeOf($(`${id}-chart`))); });
+}
+start();
