@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import math
+import sys
+import time
 
 from taprig.reduce import ScanFlag, finite_mean
 from taprig.runtime.acquisition import LiveState
@@ -42,3 +44,25 @@ def live_line(state: LiveState) -> str:
     if state.recording.get("error"):
         parts.append("NOT RECORDING")
     return "  ".join(parts)
+
+
+def follow(acquisition, duration: float | None = None, quiet: bool = False) -> None:
+    """Print the live line about once a second (overwritten in place on a terminal) for ``duration`` seconds or
+    until Ctrl-C; the acquisition is left open for the caller to close."""
+    sub = acquisition.hub.subscribe()
+    deadline = None if duration is None else time.monotonic() + duration
+    tty = sys.stderr.isatty()
+    last_print = 0.0
+    try:
+        while deadline is None or time.monotonic() < deadline:
+            state = sub.get(timeout=0.5)
+            if state is None or quiet or time.monotonic() - last_print < 1.0:
+                continue
+            last_print = time.monotonic()
+            print(("\r" if tty else "") + live_line(state), end="" if tty else "\n", file=sys.stderr, flush=True)
+    except KeyboardInterrupt:
+        pass
+    finally:
+        sub.close()
+        if tty and not quiet:
+            print(file=sys.stderr)

@@ -29,4 +29,6 @@ def run(args) -> int:
     # In compressed time the simulated clock outruns the host's wall-clock heartbeat, so the simulated board's
     # watchdog would trip at once (docs/simulator.md): it is switched off there, and only there.
     query = f"seed={args.seed}" + ("&speed=max&watchdog_ms=0" if args.fast else "")
-    return sweep(args, f"sim://?{query}", stem="demo")
+    # With a person at a terminal the dashboard stays up after the sweep, to run the rig from the page.
+    linger = not args.no_dashboard and not args.fast and sys.stdin.isatty()
+    return sweep(args, f"sim://?{query}", stem="demo", linger=linger)

@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import sys
-import time
+from pathlib import Path
 
 from taprig.cli import UserError, finite_positive, scan_rate
+from taprig.cli.dashboard import add_dashboard_options
 from taprig.cli.runopts import add_rig_options
 
 
@@ -20,46 +21,49 @@ def register(sub) -> None:
     p.add_argument("--rate", type=scan_rate, default=500.0, metavar="HZ", help="scan rate [Hz] (default 500)")
     p.add_argument("-o", "--output", metavar="FILE", help="session file to write (default: sessions/<rig>-<time>.taprig)")
     p.add_argument("--quiet", action="store_true", help="no live line, only the final summary")
+    add_dashboard_options(p)
     p.set_defaults(func=run)
 
 
-def open_run(args, port: str, default_dir: str, stem: str | None = None, rig=None):
+def open_run(args, port: str, default_dir: str, stem: str | None = None, rig=None, record: bool = True):
     """Build and open an acquisition from the common options: returns (acquisition, output path).
 
-    ``rig`` is the already loaded ``--rig`` when the caller needed it first (it is parsed only once).
+    ``rig`` is the already loaded ``--rig`` when the caller needed it first (it is parsed only once). With
+    ``record=False`` nothing is recorded yet (the path is None): recording can start later on demand.
     """
     from taprig.cli.runopts import ambient_arg, build_reducer, load_calibration_arg, load_rig_arg, new_output_path
     from taprig.link import Link
-    from taprig.runtime.acquisition import Acquisition, AcquisitionError, session_meta
-    from taprig.session.store import SessionError, SessionWriter
+    from taprig.runtime.acquisition import Acquisition, AcquisitionError
     from taprig.sim import with_rig
 
     rig = rig or load_rig_arg(args.rig)
     calibration = load_calibration_arg(args.calibration, rig, getattr(args, "accept_failed_calibration", False))
     ambient = ambient_arg(args, rig)
     reducer = build_reducer(rig, calibration, ambient)
-    out = new_output_path(args.output, default_dir, stem or rig.id)
     url = with_rig(port, args.rig)
-    try:
-        writer = SessionWriter(out, session_meta(rig, url, ambient))
-    except SessionError as exc:
-        raise UserError(str(exc)) from None
-    writer.add_snapshot("rig", args.rig, rig.source_text)
-    for name, text in (rig.attachments or {}).items():
-        writer.add_snapshot("section", name, text)
-    if calibration is not None:
-        from taprig.rig import calibration_to_text
-
-        writer.add_snapshot("calibration", args.calibration, calibration_to_text(calibration))
+    out = new_output_path(args.output, default_dir, stem or rig.id) if record else None
+    writer = new_writer(args, rig, calibration, ambient, url, out) if record else None
     link = Link(url, baudrate=rig.link.baud, keep_dtr_rts=not rig.link.touch_control_lines)
     acquisition = Acquisition(link, rig, reducer, writer)
     try:
         acquisition.open(args.rate)
     except AcquisitionError as exc:
-        writer.close()
-        _remove_unused(out)
+        if writer is not None:
+            writer.close()
+            _remove_unused(out)
         raise UserError(str(exc)) from None
     return acquisition, out
+
+
+def new_writer(args, rig, calibration, ambient, url: str, out):
+    """A session writer for ``out`` with the run's metadata and the rig (and calibration) snapshots written."""
+    from taprig.runtime.recording import new_session
+    from taprig.session.store import SessionError
+
+    try:
+        return new_session(out, rig, url, ambient, calibration, args.rig, args.calibration or "calibration")
+    except SessionError as exc:
+        raise UserError(str(exc)) from None
 
 
 def _remove_unused(out) -> None:
@@ -81,25 +85,22 @@ def print_summary(acquisition, out, stream=None) -> None:
 
 
 def run(args) -> int:
-    from taprig.cli.live import live_line
+    from taprig.cli.dashboard import start_dashboard
+    from taprig.cli.live import follow
+    from taprig.runtime.station import Station
 
     acquisition, out = open_run(args, args.port, "sessions")
-    sub = acquisition.hub.subscribe()
-    deadline = None if args.duration is None else time.monotonic() + args.duration
-    tty = sys.stderr.isatty()
-    last_print = 0.0
+    station = dashboard = None
     try:
-        while deadline is None or time.monotonic() < deadline:
-            state = sub.get(timeout=0.5)
-            if state is None or args.quiet or time.monotonic() - last_print < 1.0:
-                continue
-            last_print = time.monotonic()
-            print(("\r" if tty else "") + live_line(state), end="" if tty else "\n", file=sys.stderr, flush=True)
-    except KeyboardInterrupt:
-        pass
+        if not args.no_dashboard:
+            station = Station(acquisition, real_board=not args.port.lower().startswith("sim://"))
+            dashboard = start_dashboard(args, station, sessions_dir=Path(out).parent)
+        follow(acquisition, args.duration, args.quiet)
     finally:
-        if tty and not args.quiet:
-            print(file=sys.stderr)
+        if dashboard is not None:
+            dashboard.close()
+        if station is not None:
+            station.close()
         acquisition.close()
     print_summary(acquisition, out)
     return 1 if acquisition.writer.error else 0

@@ -8,8 +8,10 @@ from __future__ import annotations
 
 import math
 import sys
+from pathlib import Path
 
 from taprig.cli import UserError, program_name
+from taprig.cli.dashboard import add_dashboard_options
 from taprig.cli.runopts import add_rig_options
 
 SAFETY = ("Safety on a real rig: fan guards on, eye protection with compressed air, never defeat an interlock; "
@@ -28,6 +30,7 @@ def add_sweep_options(p) -> None:
     p.add_argument("--no-zero", action="store_true", help="skip the wind-off zero before the fan starts")
     p.add_argument("--rate", type=float, default=500.0, metavar="HZ", help="scan rate [Hz] (default 500)")
     p.add_argument("-o", "--output", metavar="FILE", help="session file (default: sessions/<rig>-<time>.taprig)")
+    add_dashboard_options(p)
 
 
 def register(sub) -> None:
@@ -99,13 +102,15 @@ HEADER = (f"{'α [°]':>6}  {'q [Pa]':>7}  {'V m/s':>5}  {'Re':>8}  {'Cl (fit, w
           f"{'Cd_p':>7}  {'Cm¼':>7}")
 
 
-def sweep(args, port: str, stem: str | None = None) -> int:
-    """Open ``port``, zero, start the fan, sweep, print the table and the lift curve; record it all."""
+def sweep(args, port: str, stem: str | None = None, linger: bool = False) -> int:
+    """Open ``port``, zero, start the fan, sweep, print the table and the lift curve; record it all.
+
+    The dashboard shows the run (unless ``--no-dashboard``); with ``linger`` it stays up after the sweep, the
+    actuators at their safe values, until Ctrl-C.
+    """
     from taprig.cli.commands.record import open_run, print_summary
     from taprig.cli.runopts import load_rig_arg
     from taprig.protocol import ActuatorKind
-    from taprig.runtime.acquisition import AcquisitionError
-    from taprig.runtime.sweep import run_sweep, sweep_lift_curve, wait_device_time
 
     rig = load_rig_arg(args.rig)
     targets = angles(args, rig)  # bad ranges are refused before anything opens or moves
@@ -115,8 +120,40 @@ def sweep(args, port: str, stem: str | None = None) -> int:
     if not fan.min <= args.fan <= fan.max:
         raise UserError(f"--fan {args.fan:g} is outside the fan's range {fan.min:g} … {fan.max:g} ({fan.unit})")
     acq, out = open_run(args, port, "sessions", stem=stem, rig=rig)
-    print(f"{acq.rig.name!r} on {acq.link.port_name} ({acq.description.firmware}, {len(acq.rig.taps)} taps), "
-          f"recording to {out}")
+    station = dashboard = None
+    try:
+        if not args.no_dashboard:
+            from taprig.cli.dashboard import start_dashboard
+            from taprig.runtime.station import Station
+
+            station = Station(acq, real_board=not port.lower().startswith("sim://"))
+            station.needs_confirmation = False  # the operator confirmed at the terminal (or with --yes)
+            dashboard = start_dashboard(args, station, sessions_dir=Path(out).parent)
+        print(f"{acq.rig.name!r} on {acq.link.port_name} ({acq.description.firmware}, {len(acq.rig.taps)} taps), "
+              f"recording to {out}")
+        return _sweep_run(args, acq, fan, targets, station, linger)
+    finally:
+        if dashboard is not None:
+            dashboard.close()
+        if station is not None:
+            station.close()
+        acq.close()  # every actuator to its safe value, also on Ctrl-C
+        print_summary(acq, out)
+        me = program_name()
+        print(f"next: {me} info {out}   {me} review {out}   {me} export {out} --format csv -o run.csv")
+
+
+def _sweep_run(args, acq, fan, targets, station, linger: bool) -> int:
+    """Zero, fan, the sweep with its table and lift curve; then, with ``linger``, keep the dashboard up."""
+    from taprig.cli.live import follow
+    from taprig.runtime.acquisition import AcquisitionError
+    from taprig.runtime.sweep import run_sweep, sweep_lift_curve, wait_device_time
+
+    def on_point(point) -> None:
+        print(point_line(point), flush=True)
+        if station is not None:
+            station.add_sweep_point(point)
+
     try:
         wait_device_time(acq, 1.0, 20)
         if not args.no_zero:
@@ -126,8 +163,7 @@ def sweep(args, port: str, stem: str | None = None) -> int:
         wait_device_time(acq, args.spin_up, 30 + args.spin_up)
         acq.check_flow(min(1.0, args.average))
         print(f"\n{HEADER}")
-        points = run_sweep(acq, targets, settle_s=args.settle, average_s=args.average,
-                           on_point=lambda p: print(point_line(p), flush=True))
+        points = run_sweep(acq, targets, settle_s=args.settle, average_s=args.average, on_point=on_point)
         curve = sweep_lift_curve(points)
         per_deg = math.pi / 180
         print(f"\nlift slope {curve.slope * per_deg:.4f} ± {curve.u_slope * per_deg:.4f} (scatter about the line) "
@@ -143,11 +179,12 @@ def sweep(args, port: str, stem: str | None = None) -> int:
         raise UserError(str(exc)) from None
     except ValueError as exc:  # too few usable points for a lift curve
         raise UserError(f"no lift curve: {exc}") from None
-    finally:
-        acq.close()  # every actuator to its safe value, also on Ctrl-C
-    print_summary(acq, out)
-    me = program_name()
-    print(f"next: {me} info {out}   {me} replay {out} --fast   {me} export {out} --format csv -o run.csv")
+    if linger and station is not None:
+        for actuator in acq.rig.actuators:
+            acq.set_actuator(actuator.name, actuator.safe)
+        print("\nsweep done, fan and angle back at their safe values; the dashboard stays up to run the rig from "
+              "the page. Ctrl-C ends.", file=sys.stderr)
+        follow(acq, None, quiet=True)
     return 0
 
 

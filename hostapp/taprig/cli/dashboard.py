@@ -1,0 +1,53 @@
+"""The dashboard options every acquiring command shares, and starting the server for a run (``--http-port``,
+``--listen``, ``--no-browser``, ``--no-dashboard``)."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from taprig.cli import UserError, bounded
+
+port_number = bounded(0, 65535, "")
+
+
+def add_dashboard_options(p, serve_by_default: bool = True) -> None:
+    """``--http-port``, ``--listen``, ``--no-browser`` and (for commands that serve by default) ``--no-dashboard``."""
+    from taprig.web.server import DEFAULT_PORT
+
+    g = p.add_argument_group("dashboard (a page in the browser, served by this run)")
+    g.add_argument("--http-port", type=port_number, default=None, metavar="N",
+                   help=f"serve the dashboard on port N (default {DEFAULT_PORT}, or the next free one)")
+    g.add_argument("--listen", default="127.0.0.1", metavar="ADDR",
+                   help="address to serve on (default 127.0.0.1, this computer only); 0.0.0.0 serves the network, "
+                        "where everyone needs the link with its key")
+    g.add_argument("--no-browser", action="store_true", help="print the dashboard's link but open no browser")
+    if serve_by_default:
+        g.add_argument("--no-dashboard", action="store_true", help="serve no dashboard (terminal only)")
+
+
+def start_dashboard(args, station=None, sessions_dir: str | Path | None = None, source: str | None = None):
+    """Serve the dashboard for this run and print its link as the first line; None with ``--no-dashboard``.
+
+    ``source`` names the display the printed link opens (the live run by default).
+    """
+    from taprig.web.app import Sources
+    from taprig.web.server import DEFAULT_PORT, ServeError, is_loopback, open_browser, serve
+
+    if getattr(args, "no_dashboard", False):
+        return None
+    folder = Path(sessions_dir) if sessions_dir is not None else None
+    port = DEFAULT_PORT if args.http_port is None else int(args.http_port)
+    try:
+        dashboard = serve(Sources(station, folder), args.listen, port, tries=20 if args.http_port is None else 1)
+    except (ServeError, OSError) as exc:
+        raise UserError(str(exc)) from None
+    suffix = f"&source={source}" if source else ""
+    url = dashboard.url() + suffix
+    print(f"dashboard: {url}", flush=True)
+    if not is_loopback(args.listen):
+        print(f"view-only link for others (cannot command anything): {dashboard.url('view')}{suffix}", flush=True)
+        print("the first link controls the rig: give it to no one else", file=sys.stderr)
+    if not args.no_browser:
+        open_browser(url)
+    return dashboard
