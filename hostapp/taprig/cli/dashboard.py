@@ -26,10 +26,10 @@ def add_dashboard_options(p, serve_by_default: bool = True) -> None:
         g.add_argument("--no-dashboard", action="store_true", help="serve no dashboard (terminal only)")
 
 
-def start_dashboard(args, station=None, sessions_dir: str | Path | None = None, source: str | None = None):
+def start_dashboard(args, station=None, sessions_dir: str | Path | None = None, replay: Path | None = None):
     """Serve the dashboard for this run and print its link as the first line; None with ``--no-dashboard``.
 
-    ``source`` names the display the printed link opens (the live run by default).
+    With ``replay`` (a session file) that session is opened for replay and the printed links open it.
     """
     from taprig.web.app import Sources
     from taprig.web.server import DEFAULT_PORT, ServeError, is_loopback, open_browser, serve
@@ -42,12 +42,22 @@ def start_dashboard(args, station=None, sessions_dir: str | Path | None = None, 
         dashboard = serve(Sources(station, folder), args.listen, port, tries=20 if args.http_port is None else 1)
     except (ServeError, OSError) as exc:
         raise UserError(str(exc)) from None
-    suffix = f"&source={source}" if source else ""
+    suffix = ""
+    if replay is not None:
+        from taprig.session.replay import ReplayError
+        from taprig.session.store import SessionError
+
+        try:
+            suffix = f"&source={dashboard.sources.open_replay(Path(replay))}"
+        except (ReplayError, SessionError, ValueError) as exc:
+            dashboard.close()
+            raise UserError(str(exc).splitlines()[0]) from None
     url = dashboard.url() + suffix
     print(f"dashboard: {url}", flush=True)
+    print(f"view-only link (cannot command anything): {dashboard.url('view')}{suffix}", flush=True)
     if not is_loopback(args.listen):
-        print(f"view-only link for others (cannot command anything): {dashboard.url('view')}{suffix}", flush=True)
-        print("the first link controls the rig: give it to no one else", file=sys.stderr)
+        print("the first link controls the rig: give it to no one else; hand out the view-only link",
+              file=sys.stderr)
     if not args.no_browser:
         open_browser(url)
     return dashboard

@@ -115,6 +115,13 @@ class Display:
         """What the page shows besides the numbers (overridden)."""
         return {}
 
+    def latest_frame(self) -> Frame:
+        """The newest display update (made now when no viewer keeps them coming), for a client that polls."""
+        frame = self.frames.latest
+        if frame is None or self.frames.subscriber_count == 0:
+            frame = self.frame(self.source.hub.latest)
+        return frame
+
     def trend_view(self) -> list:
         """The trend of q [Pa] and Cl over the last minutes: ``[host_ns, q, Cl]`` rows, oldest first."""
         with self._lock:
@@ -124,7 +131,7 @@ class Display:
         if state is None or state.block is None:
             return
         summary = state.summary()
-        flowing = np.count_nonzero(state.block.scan_flags & ScanFlag.NO_FLOW) * 2 < state.block.n_scans
+        flowing = not np.any(state.block.scan_flags & ScanFlag.NO_FLOW)  # Cl of wind-off noise means nothing
         row = [state.host_ns, num(summary.get("q_pa")), num(summary.get("cl")) if flowing else None]
         with self._lock:
             if not self.trend or state.host_ns - self.trend[-1][0] >= 1e9 / TREND_RATE_HZ:

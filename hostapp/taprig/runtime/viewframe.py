@@ -206,7 +206,10 @@ def point_record_summary(index: int, label: str, record: dict) -> dict:
     """A point as stored in a session (:func:`taprig.runtime.acquisition.point_record`) for the points table."""
     best = record.get("corrected") or record.get("shape") or record.get("plain") or {}
     flags = list(record.get("flags") or [])
-    state = "no flow" if "NO_FLOW" in flags else "reference invalid" if "REFERENCE_INVALID" in flags else "flow"
+    # the point's flags are the OR over its scans: a single wind-off scan sets NO_FLOW, so the reducer's having made
+    # coefficients (or, with no integral, a q) is what says the mean had flow
+    made = best.get("cl") is not None if best else record.get("v_ms") is not None
+    state = "flow" if made else "reference invalid" if "REFERENCE_INVALID" in flags else "no flow"
     flowing = state == "flow"
     alpha = record.get("alpha_rad")
 

@@ -262,6 +262,12 @@ def create_app(sources: Sources, keys: Keys, log: Callable[[str], None] | None =
         return Response(events(), mimetype="text/event-stream",
                         headers={"Cache-Control": "no-store", "X-Accel-Buffering": "no"})
 
+    @app.get("/api/<name>/latest")
+    def latest(name: str):
+        need("view")
+        frame = sources.get(name).latest_frame()
+        return Response(frame.text(), mimetype="application/json")
+
     @app.get("/api/<name>/points")
     def points(name: str):
         need("view")

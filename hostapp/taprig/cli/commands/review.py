@@ -22,22 +22,14 @@ def register(sub) -> None:
 
 def run(args) -> int:
     from taprig.cli.dashboard import start_dashboard
-    from taprig.session.replay import ReplayError
-    from taprig.session.store import SessionError
 
     path = Path(args.path)
     if not path.exists():
         raise UserError(f"{path}: no such file or folder")
     folder = path if path.is_dir() else path.parent
-    dashboard = start_dashboard(args, None, sessions_dir=folder)
+    dashboard = start_dashboard(args, None, sessions_dir=folder, replay=None if path.is_dir() else path)
+    print(f"sessions in {folder}; Ctrl-C ends", file=sys.stderr)
     try:
-        if path.is_file():
-            try:
-                name = dashboard.sources.open_replay(path)
-            except (ReplayError, SessionError, ValueError) as exc:
-                raise UserError(str(exc).splitlines()[0]) from None
-            print(f"replay of {path.name}: {dashboard.url()}&source={name}", flush=True)
-        print(f"sessions in {folder}; Ctrl-C ends", file=sys.stderr)
         dashboard.thread.join()
     except KeyboardInterrupt:
         pass

@@ -1,0 +1,278 @@
+"""The dashboard in real headless Chromium (Debian's chromium, driven by playwright) against the simulated rig in
+its own process on a pseudo-terminal (``taprig sim``), served by ``taprig live`` in another process.
+
+Screenshots of each view go to ``test-artifacts/dashboard/``. Waits are on the page's own state with timeouts;
+nothing here measures time (the benchmark does).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+import shutil
+import signal
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from taprig.protocol import RawBlock
+from taprig.session.replay import Replay
+from taprig.session.store import SessionReader
+
+pytestmark = pytest.mark.browser
+playwright_api = pytest.importorskip("playwright.sync_api")
+
+ROOT = Path(__file__).resolve().parents[2]
+RIGS = ROOT / "rigs"
+ARTIFACTS = ROOT / "test-artifacts" / "dashboard"
+CHROMIUM = os.environ.get("TAPRIG_CHROMIUM") or shutil.which("chromium") or "/usr/bin/chromium"
+TAPRIG = [sys.executable, "-m", "taprig"]
+ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run", "--disable-background-networking",
+        "--disable-component-update", "--disable-sync"]
+
+
+def spawn(*args: str, cwd: Path) -> subprocess.Popen:
+    return subprocess.Popen([*TAPRIG, *args], cwd=cwd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            start_new_session=True)
+
+
+def first_lines(proc: subprocess.Popen, n: int) -> list[str]:
+    lines = []
+    for _ in range(n):
+        line = proc.stdout.readline()
+        if not line:
+            raise AssertionError(f"process ended early: {proc.stderr.read()[-2000:]}")
+        lines.append(line.strip())
+    return lines
+
+
+def end(proc: subprocess.Popen) -> str:
+    if proc.poll() is None:
+        os.killpg(proc.pid, signal.SIGINT)
+        try:
+            proc.wait(20)
+        except subprocess.TimeoutExpired:
+            os.killpg(proc.pid, signal.SIGKILL)
+            proc.wait(5)
+    return proc.stderr.read()
+
+
+@pytest.fixture(scope="module")
+def browser():
+    if not Path(CHROMIUM).exists():
+        pytest.fail(f"Chromium not found at {CHROMIUM}: `make test` installs Debian's chromium (tools/ensure-chromium)")
+    with playwright_api.sync_playwright() as p:
+        b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        yield b
+        b.close()
+
+
+@pytest.fixture(scope="module")
+def bench(tmp_path_factory):
+    """The simulated airfoil rig on a pty in its own process, and ``taprig live`` serving the page for it."""
+    work = tmp_path_factory.mktemp("bench")
+    sim = spawn("sim", "--rig", str(RIGS / "naca0012-20tap.toml"), "--seed", "7", cwd=work)
+    pty = first_lines(sim, 1)[0]
+    live = spawn("live", "--rig", str(RIGS / "naca0012-20tap.toml"), "--port", pty, "--no-browser", "--http-port", "0",
+                 "--sessions", str(work / "sessions"), "--quiet", cwd=work)
+    control, view = first_lines(live, 2)
+    info = {"control": control.split(": ", 1)[1], "view": view.split(": ", 1)[1], "work": work}
+    yield info
+    info["stderr"] = end(live)
+    end(sim)
+    assert "Traceback" not in info["stderr"]
+
+
+class Page:
+    """A page with its console errors collected."""
+
+    def __init__(self, browser, url: str, width: int = 1500, height: int = 1300):
+        self.context = browser.new_context(viewport={"width": width, "height": height}, bypass_csp=True)
+        self.page = self.context.new_page()
+        self.errors: list[str] = []
+        self.page.on("console", lambda m: self.errors.append(m.text) if m.type == "error" else None)
+        self.page.on("pageerror", lambda e: self.errors.append(str(e)))
+        self.page.goto(url)
+
+    def until(self, js: str, timeout_s: float = 30) -> None:
+        self.page.wait_for_function(js, timeout=timeout_s * 1000)
+
+    def text(self, selector: str) -> str:
+        return self.page.inner_text(selector)
+
+    def shot(self, name: str) -> None:
+        ARTIFACTS.mkdir(parents=True, exist_ok=True)
+        self.page.screenshot(path=str(ARTIFACTS / f"{name}.png"), full_page=True)
+
+    def close(self) -> None:
+        self.context.close()
+
+
+def set_actuator(page: Page, name: str, value: float) -> None:
+    """Set an actuator from the page; on a board that is not simulated the first command asks first."""
+    page.page.fill(f"#in-{name}", str(value))
+    page.page.click(f"#in-{name} + button")
+    if page.page.evaluate("() => document.getElementById('confirm').open"):
+        assert "guards on" in page.text("#confirm-text")
+        page.page.click("#confirm-yes")
+    page.until(f"() => document.getElementById('now-{name}').textContent.startsWith('now {value:.3f}')")
+
+
+def test_the_page_runs_the_rig_and_the_stop_reaches_the_board(browser, bench):
+    page = Page(browser, bench["control"])
+    try:
+        page.until("() => window.taprig.frames > 3")
+        for view in ("#cp-chart canvas", "#tap-chart canvas", "#trend-chart canvas", "#lift-chart canvas", "#linkcard",
+                     "#controls", "#stop", "#sessions-card"):
+            assert page.page.is_visible(view), view
+        assert "guards on" in page.text("#safety")
+        assert "NO FLOW" in page.text("#st-flow")
+        page.shot("live-wind-off")
+        set_actuator(page, "fan", 0.8)
+        page.until("() => document.getElementById('st-flow').textContent === 'FLOW'")
+        set_actuator(page, "alpha", 6.0)
+        page.page.click("#b-zero")  # refused with the fan running: said in words
+        page.until("() => document.getElementById('message').textContent.includes('wind-off zero needs it')")
+        page.page.click("#b-record")
+        page.until("() => document.getElementById('st-rec').textContent.includes('REC')")
+        page.until("() => window.taprig.frames > 60")  # the tubing and the fan settle
+        page.page.click("#b-capture")
+        page.until("() => document.querySelectorAll('#points tbody tr').length === 1")
+        page.page.fill("#note", "tufts attached at 6 degrees")
+        page.page.click("#b-note")
+        page.shot("live-flow")
+        # the page's Cl equals the reducer's mean of the very scans it names (replayed from the record)
+        page.until("() => window.taprig.lastDrawn && window.taprig.lastDrawn.window && /±/.test(window.taprig.lastDrawn.cl)")
+        drawn = page.page.evaluate("() => window.taprig.lastDrawn")
+        page.page.click("#b-record")
+        page.until("() => document.getElementById('st-rec').textContent === 'not recording'")
+        page.page.keyboard.press("Escape")  # the stop key: every actuator to its safe value
+        page.until("() => document.getElementById('message').textContent.startsWith('STOP')")
+        page.until("() => document.getElementById('st-flow').textContent === 'NO FLOW'", 60)  # the fan ran down
+        assert "safe value" in page.text("#now-fan") and "safe value" in page.text("#now-alpha")
+        page.page.click("#b-zero")
+        page.until("() => document.getElementById('message').textContent === 'wind-off zero taken'")
+        page.shot("live-after-stop")
+        # the refused zero above answered 409, which Chromium logs as a failed load: that one is expected
+        assert [e for e in page.errors if "status of 409" not in e] == []
+    finally:
+        page.close()
+    session = sorted((bench["work"] / "sessions").glob("*.taprig"))[-1]
+    with SessionReader(session) as reader:
+        assert [e.data["text"] for e in reader.events() if e.kind == "note"] == ["tufts attached at 6 degrees"]
+        assert len(reader.points()) == 1
+    first, last = drawn["window"]["scan_index"]
+    with Replay(session) as replay:
+        raws = [b.raw for s in replay for b in s.blocks]
+        reducer = replay.reducer_in_force(replay.start_ns + 10**12)
+    raw = RawBlock.concat(raws)
+    keep = (raw.scan_index >= first) & (raw.scan_index <= last)
+    mean = reducer.reduce_mean(RawBlock(raw.counts[keep], raw.channels, raw.t_ns[keep], raw.scan_index[keep]),
+                               alpha_rad=math.radians(6))
+    value, u = drawn["cl"].split(" ± ")
+    digits = len(value.split(".")[1]) if "." in value else 0
+    assert abs(float(value) - mean.corrected.cl) <= 0.5 * 10 ** -digits + 1e-12
+    assert abs(float(u) - mean.corrected.u_cl) <= 0.5 * 10 ** -digits + 1e-12
+
+
+def test_two_browsers_see_each_others_commands_and_a_view_link_commands_nothing(browser, bench):
+    a, b = Page(browser, bench["control"]), Page(browser, bench["view"], width=420, height=900)  # a phone
+    try:
+        for p in (a, b):
+            p.until("() => window.taprig.frames > 2")
+        set_actuator(a, "alpha", 4.0)
+        b.until("() => document.getElementById('n-alpha').textContent.startsWith('4.00')")
+        assert not b.page.is_visible("#controls") and not b.page.is_visible("#stop")
+        assert "view-only" in b.text("#keys")
+        status = b.page.evaluate("""async () => (await fetch('/api/live/setpoint', {method: 'POST',
+            headers: {'Content-Type': 'application/json', 'X-Taprig-Key': sessionStorage.getItem('taprig.key')},
+            body: JSON.stringify({actuator: 'fan', value: 1.0})})).status""")
+        assert status == 403
+        b.shot("view-only-phone")
+        set_actuator(a, "alpha", 0.0)
+        # the refused command above answered 403, which Chromium logs as a failed load: that one is expected
+        assert a.errors == [] and [e for e in b.errors if "status of 403" not in e] == []
+    finally:
+        a.close()
+        b.close()
+
+
+def test_without_its_key_the_page_says_so(browser, bench):
+    url = bench["control"].split("?")[0]
+    page = Page(browser, url)
+    try:
+        page.until("() => document.getElementById('message').textContent.includes('needs its key')")
+    finally:
+        page.close()
+
+
+def test_a_sweep_from_the_page(browser, bench):
+    page = Page(browser, bench["control"])
+    try:
+        page.until("() => window.taprig.frames > 2")
+        set_actuator(page, "fan", 0.8)
+        page.until("() => document.getElementById('st-flow').textContent === 'FLOW'")
+        page.until("() => window.taprig.frames > 50")
+        for field, value in (("#sw-from", "0"), ("#sw-to", "4"), ("#sw-step", "2"), ("#sw-settle", "0.5"),
+                             ("#sw-avg", "0.5")):
+            page.page.fill(field, value)
+        page.page.click("#b-sweep")
+        page.until("() => document.getElementById('sweep-state').textContent === 'sweep done'", 60)
+        page.until("() => document.getElementById('lift-legend').textContent.startsWith('lift slope')")
+        rows = page.page.eval_on_selector_all("#points tbody tr td:nth-child(3)", "tds => tds.map(t => t.textContent)")
+        assert rows[-3:] == ["0.00", "2.00", "4.00"]
+        page.shot("sweep")
+        page.page.click("#stop")
+        page.until("() => document.getElementById('message').textContent.startsWith('STOP')")
+        assert page.errors == []
+    finally:
+        page.close()
+
+
+def test_replay_in_the_page_shows_the_recorded_numbers(browser, bench, tmp_path):
+    session = sorted((bench["work"] / "sessions").glob("*.taprig"))[0]
+    review = spawn("review", str(session), "--no-browser", "--http-port", "0", cwd=tmp_path)
+    url = first_lines(review, 1)[0].split(": ", 1)[1]
+    page = Page(browser, url)
+    try:
+        page.until("() => window.taprig.frames > 0")
+        assert page.page.is_visible("#playback") and not page.page.is_visible("#controls")
+        with SessionReader(session) as reader:
+            recorded = [p.data for p in reader.points()]
+        cells = page.page.eval_on_selector_all("#points tbody tr td:nth-child(5)", "tds => tds.map(t => t.textContent)")
+        assert len(cells) == len(recorded) == 1
+        best = recorded[0]["corrected"]
+        value = float(cells[0].split(" ± ")[0])
+        assert abs(value - best["cl"]) < 0.01
+        page.page.select_option("#pb-speed", "0")
+        page.page.click("#pb-play")
+        page.until("() => document.getElementById('pb-pos').textContent.includes('(end)')", 60)
+        page.shot("replay")
+        assert page.errors == []
+    finally:
+        page.close()
+        end(review)
+
+
+def test_a_venturi_bench_runs_from_the_page(browser, tmp_path):
+    live = spawn("live", "--rig", str(RIGS / "venturi-8.toml"), "--port", "sim://?seed=3", "--no-browser",
+                 "--http-port", "0", "--sessions", str(tmp_path), "--quiet", cwd=tmp_path)
+    url = first_lines(live, 2)[0].split(": ", 1)[1]
+    page = Page(browser, url)
+    try:
+        page.until("() => window.taprig.frames > 2")
+        assert "venturi" in page.text("#cp-title")
+        set_actuator(page, "blower", 0.7)
+        page.until("() => document.getElementById('st-flow').textContent === 'FLOW'", 60)
+        page.until("() => /g\\/s/.test(document.getElementById('n-mdot').textContent)")
+        assert re.search(r"\d", page.text("#n-qv"))
+        page.shot("venturi")
+        page.page.click("#stop")
+        page.until("() => document.getElementById('st-flow').textContent === 'NO FLOW'", 60)
+        assert page.errors == []
+    finally:
+        page.close()
+        assert "Traceback" not in end(live)
