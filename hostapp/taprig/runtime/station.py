@@ -386,6 +386,7 @@ class Station(Display):
                 "sweep": {"running": self.sweep.running, "done": self.sweep.done, "total": self.sweep.total,
                           "message": self.sweep.message},
                 "points": len(self.points), "needs_confirmation": self.needs_confirmation,
+                "calibration": self._calibration_text(),
                 "halt": getattr(self.acq, "halt_reason", None)}
 
     def _setpoints(self) -> dict:

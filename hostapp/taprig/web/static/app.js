@@ -164,7 +164,7 @@ function makeLiftChart() {
   const series = [{}, { label: "Cl (pressures)", ...pts(C.blue, C.blue), scale: "cl" },
     { label: "Cl (balance)", ...pts(C.green, "#fff", "triangle", 10), scale: "cl" },
     { label: "thin-airfoil 2π", stroke: C.ink, width: 2, dash: [8, 5], scale: "cl", spanGaps: true, points: { show: false } },
-    { label: "stall", stroke: C.orange, width: 3, dash: [3, 4], scale: "cl", spanGaps: true, points: { show: false } }];
+    { label: "stall (Cl max)", ...pts(C.orange, "rgba(0,0,0,0)", "diamond", 18), scale: "cl" }];
   const opts = { ...sizeOf(el), legend: { show: true, live: false }, cursor: { show: false },
     scales: { x: { time: false }, cl: { auto: true } },
     axes: [axis("α [°]"), axis("Cl [-]", { scale: "cl" })], series, plugins: [errorBars()] };
@@ -268,7 +268,8 @@ function drawReadings(f) {
 
 function renderAssumptions(extra = []) {
   const ul = $("assumptions"); ul.replaceChildren();
-  const lines = [...rig.assumptions, `calibration: ${rig.calibration}`,
+  const calibration = (lastFrame && lastFrame.calibration) || rig.calibration;
+  const lines = [...rig.assumptions, `calibration: ${calibration}`,
     `wall corrections: ${rig.wall_corrections ? "on (2-D, solid and wake blockage, streamline curvature)" : "off"}`,
     `air: ${fmt(rig.ambient.pressure_pa / 100, 1)} hPa, ${fmt(rig.ambient.temperature_k - 273.15, 1)} °C, ρ ${fmt(rig.ambient.density, 4)} kg/m³`, ...extra];
   for (const l of lines) { const li = document.createElement("li"); li.textContent = l; ul.appendChild(li); }
