@@ -23,10 +23,10 @@ VENTURI = RIGS / "venturi-8.toml"
 class Live:
     """A station on the simulated rig with the app over it, and the keys to call it."""
 
-    def __init__(self, tmp_path: Path, rig_path: Path, query: str, real_board: bool = False):
+    def __init__(self, tmp_path: Path, rig_path: Path, query: str, real_board: bool = False, calibration=None):
         self.rig = load_rig(rig_path)
         self.url = f"sim://{rig_path}?{query}"
-        self.acq = Acquisition(Link(self.url, heartbeat=False), self.rig, Reducer(self.rig))
+        self.acq = Acquisition(Link(self.url, heartbeat=False), self.rig, Reducer(self.rig, calibration))
         self.acq.open(500)
         self.sessions = tmp_path / "sessions"
         self.sessions.mkdir()

@@ -73,7 +73,8 @@ def test_describe_states_what_the_numbers_rest_on(live):
     assert {a["name"] for a in d["actuators"]} == {"fan", "alpha"}
     alpha = next(a for a in d["actuators"] if a["name"] == "alpha")
     assert alpha["unit"] == "deg" and alpha["max"] == pytest.approx(15.0)
-    assert d["assumptions"] and "calibration" in d["calibration"] or "no calibration" in d["calibration"]
+    assert any("freestream static" in a for a in d["assumptions"])  # the reference pressure, stated
+    assert any("calibration" in a for a in d["assumptions"]) and d["calibration_warning"] == ""
     assert "guards" in d["safety"] and "supervisor" in d["safety"]
     # mmH2O and inH2O from their definitions: 9.80665 Pa and 249.08891 Pa (NIST SP 811, B.8)
     assert d["units"]["mmH2O"] == pytest.approx(1 / 9.80665) and d["units"]["inH2O"] == pytest.approx(1 / 249.08891)
@@ -175,6 +176,25 @@ def test_no_flow_is_shown_as_a_state_not_a_number(live):
     reading = frames(live, 2)[-1]["reading"]
     assert reading["state"] == "no flow" and "q" in reading["why"]
     assert reading["coefficients"] is None and reading["taps"]["cp"] is None and "v_ms" not in reading["flow"]
+
+
+def test_a_calibration_failing_its_own_checks_is_stated_in_every_update(tmp_path):
+    from datetime import datetime, timezone
+
+    from taprig.rig import Calibration, ChannelCalibration, load_rig
+    from tests.web.conftest import AIRFOIL, Live
+
+    rig = load_rig(AIRFOIL)
+    forced = Calibration(rig_id=rig.id, date=datetime(2026, 1, 5, tzinfo=timezone.utc), operator_note="forced",
+                         channels={"p_total": ChannelCalibration(zero_counts=0.0, gain=1e6, n_points=3,
+                                                                 flags=("gain 1e+06 × nominal",))})
+    bad = Live(tmp_path, AIRFOIL, "seed=4&speed=10&watchdog_ms=0", calibration=forced)
+    try:
+        f = frames(bad, 2)[-1]
+        assert "FAILED ITS OWN CHECKS" in f["calibration_warning"] and "p_total" in f["calibration_warning"]
+        assert f["calibration_warning"] in f["assumptions"]
+    finally:
+        bad.close()
 
 
 def test_a_sweep_from_the_page_takes_its_points_and_can_be_stopped(live):

@@ -97,7 +97,7 @@ class Page:
         self.page.on("pageerror", lambda e: self.errors.append(str(e)))
         self.page.goto(url)
 
-    def until(self, js: str, timeout_s: float = 30) -> None:
+    def until(self, js: str, timeout_s: float = 90) -> None:
         self.page.wait_for_function(js, timeout=timeout_s * 1000)
 
     def text(self, selector: str) -> str:
@@ -151,7 +151,7 @@ def test_the_page_runs_the_rig_and_the_stop_reaches_the_board(browser, bench):
         page.until("() => document.getElementById('st-rec').textContent === 'not recording'")
         page.page.keyboard.press("Escape")  # the stop key: every actuator to its safe value
         page.until("() => document.getElementById('message').textContent.startsWith('STOP')")
-        page.until("() => document.getElementById('st-flow').textContent === 'NO FLOW'", 60)  # the fan ran down
+        page.until("() => document.getElementById('st-flow').textContent === 'NO FLOW'", 180)  # the fan ran down
         assert "safe value" in page.text("#now-fan") and "safe value" in page.text("#now-alpha")
         page.page.click("#b-zero")
         page.until("() => document.getElementById('message').textContent === 'wind-off zero taken'")
@@ -220,7 +220,7 @@ def test_a_sweep_from_the_page(browser, bench):
                              ("#sw-avg", "0.5")):
             page.page.fill(field, value)
         page.page.click("#b-sweep")
-        page.until("() => document.getElementById('sweep-state').textContent === 'sweep done'", 60)
+        page.until("() => document.getElementById('sweep-state').textContent === 'sweep done'", 180)
         page.until("() => document.getElementById('lift-legend').textContent.startsWith('lift slope')")
         rows = page.page.eval_on_selector_all("#points tbody tr td:nth-child(3)", "tds => tds.map(t => t.textContent)")
         assert rows[-3:] == ["0.00", "2.00", "4.00"]
@@ -249,7 +249,7 @@ def test_replay_in_the_page_shows_the_recorded_numbers(browser, bench, tmp_path)
         assert abs(value - best["cl"]) < 0.01
         page.page.select_option("#pb-speed", "0")
         page.page.click("#pb-play")
-        page.until("() => document.getElementById('pb-pos').textContent.includes('(end)')", 60)
+        page.until("() => document.getElementById('pb-pos').textContent.includes('(end)')", 180)
         page.shot("replay")
         assert page.errors == []
     finally:
@@ -266,12 +266,12 @@ def test_a_venturi_bench_runs_from_the_page(browser, tmp_path):
         page.until("() => window.taprig.frames > 2")
         assert "venturi" in page.text("#cp-title")
         set_actuator(page, "blower", 0.7)
-        page.until("() => document.getElementById('st-flow').textContent === 'FLOW'", 60)
+        page.until("() => document.getElementById('st-flow').textContent === 'FLOW'", 180)
         page.until("() => /g\\/s/.test(document.getElementById('n-mdot').textContent)")
         assert re.search(r"\d", page.text("#n-qv"))
         page.shot("venturi")
         page.page.click("#stop")
-        page.until("() => document.getElementById('st-flow').textContent === 'NO FLOW'", 60)
+        page.until("() => document.getElementById('st-flow').textContent === 'NO FLOW'", 180)
         assert page.errors == []
     finally:
         page.close()

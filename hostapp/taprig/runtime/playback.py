@@ -125,8 +125,7 @@ class Playback(Display):
     # -- what the page asks ---------------------------------------------------------------------------------
     def describe(self) -> dict:
         """The rig as recorded, and the playback's own facts (file, duration, speeds)."""
-        note = self.calibration_name
-        out = rig_description(self.source.reducer, note)
+        out = rig_description(self.source.reducer)
         out.update({"can_record": False, "real_board": False, "port": self.meta.get("port", ""),
                     "session": {"path": str(self.path), "duration_s": self.duration_s,
                                 "started_utc": self.meta.get("started_utc", ""), "speeds": list(SPEEDS)}})
@@ -135,6 +134,7 @@ class Playback(Display):
     def status(self, state: LiveState | None) -> dict:
         """Position, speed and the decoder's counters so far, for a display update."""
         return {"mode": "replay", "playback": {"position_s": num(self.position_s), "duration_s": self.duration_s,
+                                               "calibration": self.calibration_name,
                                                "playing": self.playing, "speed": self.speed,
                                                "finished": self.finished, "error": self.error},
                 "link": {"state": "replay", "counters": self.counters, "rates": {}, "board": None,

@@ -159,13 +159,14 @@ class Display:
         """The display update for ``state``: the mean of the newest window of scans, and :meth:`status`."""
         src = self.source
         self._seq += 1
+        reducer = src.reducer
         data = {"seq": self._seq, "sent_ns": 0, "host_ns": state.host_ns if state else None,
-                "notices": self.notices[-3:], "reading": None, **self.status(state)}
+                "notices": self.notices[-3:], "reading": None, "assumptions": list(reducer.assumptions),
+                "calibration_warning": reducer.calibration_warning, **self.status(state)}
         with self._lock:
             data["trend"] = self.trend[-1] if self.trend else None
         block = src.recent(self.window_s)
         if state is not None and state.block is not None and block is not None and block.n_scans >= 2:
-            reducer = src.reducer
             mean = reducer.reduce_mean(block, alpha_rad=src.alpha_rad)
             data["reading"] = reading(reducer, mean, state.block.channel_flag_counts(),
                                       (int(block.scan_index[0]), int(block.scan_index[-1])), src.alpha_rad is not None)
@@ -209,21 +210,11 @@ class Station(Display):
     # -- what the page asks ---------------------------------------------------------------------------------
     def describe(self) -> dict:
         """The rig as a viewer needs it (taps, actuators, theory, assumptions), and what the run can do."""
-        out = rig_description(self.acq.reducer, self._calibration_text())
+        out = rig_description(self.acq.reducer)
         out["can_record"] = self.new_writer is not None
         out["real_board"] = self.needs_confirmation or not self.acq.link.port_name.lower().startswith("sim://")
         out["port"] = self.acq.link.port_name
         return out
-
-    def _calibration_text(self) -> str:
-        cal = self.acq.reducer.calibration
-        if cal is None:
-            return "no calibration: the sensors' nominal transfer functions (datasheet accuracy)"
-        flagged = cal.flagged
-        text = f"calibration of {cal.date:%Y-%m-%d %H:%M} ({cal.operator_note or 'no note'})"
-        if flagged:
-            text += "; OUT OF TOLERANCE: " + ", ".join(f"{n} ({', '.join(f)})" for n, f in flagged.items())
-        return text
 
     # -- commands ---------------------------------------------------------------------------------------------
     def confirm(self) -> None:
@@ -386,7 +377,6 @@ class Station(Display):
                 "sweep": {"running": self.sweep.running, "done": self.sweep.done, "total": self.sweep.total,
                           "message": self.sweep.message},
                 "points": len(self.points), "needs_confirmation": self.needs_confirmation,
-                "calibration": self._calibration_text(),
                 "halt": getattr(self.acq, "halt_reason", None)}
 
     def _setpoints(self) -> dict:

@@ -142,7 +142,7 @@ def _tap_pressures(reducer, mean: ReducedMean) -> dict:
     return {"value": p, "u": u}
 
 
-def rig_description(reducer, calibration_note: str) -> dict:
+def rig_description(reducer) -> dict:
     """The parts of the rig a viewer needs once: taps and their places, actuators, theory curves, assumptions."""
     rig = reducer.rig
     layout = rig.tap_layout()
@@ -165,7 +165,7 @@ def rig_description(reducer, calibration_note: str) -> dict:
         "taps": taps, "actuators": actuators,
         "theory": [{"label": c.label, "x": nums(c.x), "y": nums(c.y)} for c in reference_curves(reducer)],
         "thin_airfoil_slope_per_rad": THIN_AIRFOIL_SLOPE if rig.kind.value == "airfoil" else None,
-        "assumptions": list(reducer.assumptions), "calibration": calibration_note,
+        "assumptions": list(reducer.assumptions), "calibration_warning": reducer.calibration_warning,
         "ambient": {"pressure_pa": num(reducer.ambient.pressure), "temperature_k": num(reducer.ambient.temperature),
                     "relative_humidity": num(reducer.ambient.relative_humidity), "density": num(reducer.fluid.density)},
         "has_balance": rig.balance is not None and rig.balance.lift is not None,

@@ -230,8 +230,15 @@ function drawTrend() {
   charts.trend.setData([keep.map((r) => r[0] - now), keep.map((r) => r[1]), keep.map((r) => r[2])]);
 }
 
-function drawReadings(f) {
+// A calibration that fails its own checks: every number rests on it, so none is shown as if it held.
+function shownReading(f) {
   const r = f.reading;
+  if (!r || !f.calibration_warning) return r;
+  return { ...r, state: "bad calibration", why: f.calibration_warning, coefficients: null, fit: null, venturi: null,
+           balance: null, taps: { ...r.taps, cp: null, u_cp: null } };
+}
+
+function drawReadings(f, r) {
   const sw = $("state-word");
   const showCoeff = r && r.state === "flow";
   if (!r) { sw.hidden = false; sw.textContent = "no data yet"; }
@@ -268,8 +275,9 @@ function drawReadings(f) {
 
 function renderAssumptions(extra = []) {
   const ul = $("assumptions"); ul.replaceChildren();
-  const calibration = (lastFrame && lastFrame.calibration) || rig.calibration;
-  const lines = [...rig.assumptions, `calibration: ${calibration}`,
+  const f = lastFrame || {};
+  const lines = [...(f.assumptions || rig.assumptions),
+    ...(f.playback ? [`re-reduced with: ${f.playback.calibration}`] : []),
     `wall corrections: ${rig.wall_corrections ? "on (2-D, solid and wake blockage, streamline curvature)" : "off"}`,
     `air: ${fmt(rig.ambient.pressure_pa / 100, 1)} hPa, ${fmt(rig.ambient.temperature_k - 273.15, 1)} °C, ρ ${fmt(rig.ambient.density, 4)} kg/m³`, ...extra];
   for (const l of lines) { const li = document.createElement("li"); li.textContent = l; ul.appendChild(li); }
@@ -277,8 +285,8 @@ function renderAssumptions(extra = []) {
 
 function chip(id, text, cls) { const el = $(id); el.textContent = text; el.className = "state " + (cls || ""); }
 
-function drawStatus(f) {
-  const r = f.reading, link = f.link || {};
+function drawStatus(f, r) {
+  const link = f.link || {};
   const age = link.age_s;
   const stale = f.mode === "live" && (age === null || age > 1.0);
   chip("st-flow", r ? (r.state === "flow" ? "FLOW" : r.state.toUpperCase()) : "NO DATA", r && r.state === "flow" ? "good" : "warn");
@@ -328,7 +336,8 @@ function drawPlayback(f) {
 function onFrame(f) {
   stats.frames++; stats.lastSeq = f.seq; lastFrame = f;
   if (f.trend && (!trend.length || f.trend[0] / 1e9 > trend[trend.length - 1][0])) trend.push([f.trend[0] / 1e9, f.trend[1], f.trend[2]]);
-  drawStatus(f); drawReadings(f); drawCp(f.reading); drawTaps(f.reading); drawTrend();
+  const r = shownReading(f);
+  drawStatus(f, r); drawReadings(f, r); drawCp(r); drawTaps(r); drawTrend();
   if (f.points !== pointsVersion) { pointsVersion = f.points; loadPoints(); }
   if (f.host_ns && f.mode === "live") {
     requestAnimationFrame(() => {
@@ -517,7 +526,7 @@ async function start() {
   for (const u of [...Object.keys(rig.units), "Cp"]) { const o = document.createElement("option"); o.value = o.textContent = u; units.appendChild(o); }
   if (![...Object.keys(rig.units), "Cp"].includes(unit)) unit = "Pa";
   units.value = unit;
-  units.onchange = () => { unit = units.value; localStorage.setItem("taprig.unit", unit); charts.tap.axes[1].label = unitLabel(); charts.tap.redraw(false, true); if (lastFrame) drawTaps(lastFrame.reading); };
+  units.onchange = () => { unit = units.value; localStorage.setItem("taprig.unit", unit); charts.tap.axes[1].label = unitLabel(); charts.tap.redraw(false, true); if (lastFrame) drawTaps(shownReading(lastFrame)); };
   $("lift-card").hidden = rig.kind !== "airfoil";
   const integral = ["airfoil", "cylinder", "bump"].includes(rig.kind);
   document.querySelectorAll(".sect").forEach((e) => { e.hidden = !integral; e.nextElementSibling.hidden = !integral; });
