@@ -155,7 +155,7 @@ def test_export_parquet_by_suffix_and_partitioned(tmp_path, capsys, sessions):
     assert len(pd.read_parquet(tmp_path / "run.parquet")) == 800
     code, text, _ = run_cli(capsys, "export", *sessions[:2], "--partitioned", tmp_path / "archive")
     assert code == 0 and text.count("wrote") == 2
-    assert len(list((tmp_path / "archive" / "rig=naca0012-20tap").rglob("*.parquet"))) == 2
+    assert len(list((tmp_path / "archive" / "scans" / "rig=naca0012-20tap").rglob("*.parquet"))) == 2
 
 
 def test_export_into_a_missing_or_unwritable_place(tmp_path, capsys, sessions):

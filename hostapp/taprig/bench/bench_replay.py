@@ -15,6 +15,7 @@ from __future__ import annotations
 import json
 import tempfile
 import time
+import uuid
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
@@ -60,7 +61,7 @@ class Setpoint:
 def _session_meta(rig: Rig, options: SimOptions, start_ns: int) -> dict[str, str]:
     ambient = Ambient(options.ambient_pa, options.ambient_c + 273.15, options.humidity)
     started = datetime.fromtimestamp(start_ns / 1e9, timezone.utc).isoformat()
-    return {"software": "taprig bench", "rig_id": rig.id, "rig_name": rig.name, "port": f"sim://{rig.id}",
+    return {"software": "taprig bench", "session_id": uuid.uuid4().hex, "rig_id": rig.id, "rig_name": rig.name, "port": f"sim://{rig.id}",
             "started_utc": started, "host_started_ns": str(start_ns), **ambient_to_meta(ambient)}
 
 

@@ -14,6 +14,7 @@ import math
 import queue
 import threading
 import time
+import uuid
 from collections import deque
 from dataclasses import asdict, dataclass, field
 from datetime import datetime, timezone
@@ -384,7 +385,7 @@ class Acquisition:
 
 def session_meta(rig: Rig, port: str, ambient) -> dict[str, str]:
     """The metadata a recording starts with (docs/session-format.md)."""
-    return {"software": f"taprig {__version__}", "rig_id": rig.id, "rig_name": rig.name, "port": port,
+    return {"software": f"taprig {__version__}", "session_id": uuid.uuid4().hex, "rig_id": rig.id, "rig_name": rig.name, "port": port,
             "started_utc": datetime.now(timezone.utc).isoformat(), "host_started_ns": str(time.time_ns()),
             **ambient_to_meta(ambient)}
 

@@ -1,8 +1,8 @@
 """``taprig export FILE``: the session's scan table and points table as CSV or Parquet, or into an archive.
 
 ``-o OUT`` writes the scans to OUT and the points (if any) beside it as ``OUT-stem.points.EXT``;
-``--partitioned DIR`` adds one or more sessions to a Hive-style archive ``DIR/rig=<id>/date=<YYYY-MM-DD>/``
-that pyarrow, DuckDB, Spark or Dask read as one dataset. Columns are listed in docs/session-format.md. An
+``--partitioned DIR`` adds one or more sessions to an archive of two Hive-style datasets,
+``DIR/scans/rig=<id>/date=<YYYY-MM-DD>/`` and ``DIR/points/…``, that pyarrow, DuckDB, Spark or Dask read. Columns are listed in docs/session-format.md. An
 existing output is refused unless ``--force``.
 """
 
@@ -18,14 +18,16 @@ from taprig.cli.runopts import add_accept_failed_option, load_calibration_arg
 
 def register(sub) -> None:
     p = sub.add_parser("export", help="write a session's scans and points as CSV or Parquet",
-                       description="Replay a session and write one row per scan (times, q, V, Re, coefficients, "
-                                   "flags, Cp and pressure per tap, raw counts) and one row per captured point.")
+                       description="Replay a session and write one row per scan (session id, UTC time, q, V, Re, "
+                                   "coefficients, flags, Cp and pressure per tap, raw counts) and one row per "
+                                   "captured point. Missing values are empty (null), with the reason in the flags.")
     p.add_argument("files", nargs="+", metavar="FILE", help="session file(s); several only with --partitioned")
     p.add_argument("--format", choices=("csv", "parquet"), help="table format (default: from OUT's suffix)")
     target = p.add_mutually_exclusive_group(required=True)
     target.add_argument("-o", "--output", metavar="OUT", help="file for the scan table")
     target.add_argument("--partitioned", metavar="DIR",
-                        help="add the session(s) to the Parquet archive DIR/rig=<id>/date=<YYYY-MM-DD>/")
+                        help="add the session(s) to the Parquet archive DIR/scans/ and DIR/points/, "
+                             "each partitioned rig=<id>/date=<YYYY-MM-DD>/")
     p.add_argument("--calibration", metavar="CAL", help="re-reduce with this calibration file")
     add_accept_failed_option(p)
     p.add_argument("--force", action="store_true", help="replace outputs that already exist")
