@@ -89,7 +89,9 @@ def _joukowski_reducer(airfoil_rig, foil: JoukowskiSection, x_c, upper):
 LAYOUTS = {
     "20 uniform in x": (tap_stations_uniform(20), 0.01),
     "20 clustered": (tap_stations_cosine(20), 0.005),
-    "7 (4 upper, 3 lower)": ((np.array([0.7, 0.3, 0.1, 0.02, 0.08, 0.3, 0.7]), np.array([True] * 4 + [False] * 3)), 0.03),
+    # the layout of rigs/cambered-balance.toml: 6 suction-side taps, 3 pressure-side
+    "9 (6 upper, 3 lower)": ((np.array([0.7, 0.45, 0.25, 0.12, 0.05, 0.015, 0.08, 0.35, 0.65]),
+                              np.array([True] * 6 + [False] * 3)), 0.03),
 }
 CASES = {"symmetric 5°": (-0.1 + 0j, 5.0, 0.5973989261), "cambered 5°": (-0.1 + 0.1j, 5.0, 1.2180717599)}
 
@@ -97,7 +99,7 @@ CASES = {"symmetric 5°": (-0.1 + 0j, 5.0, 0.5973989261), "cambered 5°": (-0.1 
 @pytest.mark.parametrize("case", CASES)
 def test_shape_integrator_recovers_exact_joukowski_cl(case, make_block, airfoil_rig, capsys):
     # Exact Cl = 8π(R/ℓ) sin(α + β) of the Joukowski airfoil (docs/REFERENCES.md); targets of issue 4: within 1 %
-    # with 20 taps uniform in x, 0.5 % with 20 clustered taps, 3 % with 7 taps.
+    # with 20 taps uniform in x, 0.5 % with 20 clustered taps, 3 % with a sparse 9-tap layout.
     centre, alpha_deg, exact = CASES[case]
     foil = JoukowskiSection(centre)
     alpha = math.radians(alpha_deg)

@@ -33,16 +33,16 @@ def test_matching_description_has_no_differences() -> None:
 
 def test_channel_differences_are_named() -> None:
     d = _description()
-    fewer = replace(d, channels=d.channels[:8])
+    fewer = replace(d, channels=d.channels[:10])
     wrong = replace(d, channels=d.channels[:1] + (ChannelInfo("u1", Encoding.I16),) + d.channels[2:])
-    assert RIG.differences(fewer) == ["the device has 8 channel(s), the rig file describes 9",
-                                      "channel 'lift' (index 8) is not on the device, which has 8 channel(s)"]
+    assert RIG.differences(fewer) == ["the device has 10 channel(s), the rig file describes 11",
+                                      "channel 'lift' (index 10) is not on the device, which has 10 channel(s)"]
     few = replace(d, channels=d.channels[:3])
-    assert RIG.differences(few)[1].startswith("6 of the rig's channels (")  # one sentence, not six
+    assert RIG.differences(few)[1].startswith("8 of the rig's channels (")  # one sentence, not eight
     assert len(RIG.differences(few)) == 2
     more = replace(d, channels=d.channels + (ChannelInfo("spare", Encoding.U16),))
-    assert RIG.differences(more) == ["the device has 10 channel(s), the rig file describes 9; "
-                                     "the rig file does not describe device channel(s) [9]"]
+    assert RIG.differences(more) == ["the device has 12 channel(s), the rig file describes 11; "
+                                     "the rig file does not describe device channel(s) [11]"]
     assert RIG.differences(wrong) == ["channel 'u1' (index 1): the rig expects u16, the device sends i16 (device name 'u1')"]
 
 
@@ -52,7 +52,7 @@ def test_actuator_differences_are_named() -> None:
     unsafe = replace(d, actuators=(ActuatorInfo(0, ActuatorKind.FAN, 0.0, 1.0, 0.2, "duty", "fan"), d.actuators[1]))
     missing = replace(d, actuators=d.actuators[:1])
     kind = replace(d, actuators=(ActuatorInfo(0, ActuatorKind.OTHER, 0.0, 1.0, 0.0, "duty", "x"), d.actuators[1]))
-    assert RIG.differences(narrow) == ["actuator 'alpha' (id 1): the rig's range [-10, 20] is not within the device's [-5, 25]"]
+    assert RIG.differences(narrow) == ["actuator 'alpha' (id 1): the rig's range [-8, 16] is not within the device's [-5, 25]"]
     assert RIG.differences(unsafe) == ["actuator 'fan' (id 0): the rig's safe value 0 differs from the device's 0.2"]
     assert RIG.differences(missing) == ["actuator 'alpha' (id 1) is not on the device (its actuator ids: 0)"]
     assert RIG.differences(kind) == ["actuator 'fan' (id 0): the rig says fan, the device says other"]
