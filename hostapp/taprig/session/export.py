@@ -167,7 +167,7 @@ def block_table(block: ReplayBlock, spec: ScanSchema, t0_ns: int, start_ns: int,
 
 def _with_meta(schema: pa.Schema, meta: dict[str, str]) -> pa.Schema:
     """``schema`` carrying the session's ``meta`` (ambient conditions, rig, reference pressures…) as JSON."""
-    return schema.with_metadata({META_KEY: json.dumps(meta, sort_keys=True).encode()})
+    return schema.with_metadata({**(schema.metadata or {}), META_KEY: json.dumps(meta, sort_keys=True).encode()})
 
 
 def scan_tables(replay: Replay, progress: Progress | None = None) -> Iterator[pa.Table]:
