@@ -72,6 +72,11 @@ def run(capsys, *argv) -> tuple[int, str]:
     ("--humidity-pct", "nan", ["--humidity-pct nan %"]),
     ("--temperature-c", "-400", ["--temperature-c -400 °C", "absolute zero (-273.15 °C)"]),
     ("--pressure-hpa", "0", ["--pressure-hpa 0 hPa", "> 0 hPa"]),
+    # unit slips (common practice: a room is at 300–1100 hPa and −30–60 °C); before, 101325 gave V √10 too small
+    ("--pressure-hpa", "101325", ["--pressure-hpa 101325 hPa", "pascals typed as hPa", "--pressure-hpa 1013.25"]),
+    ("--pressure-hpa", "101.3", ["kilopascals", "--pressure-hpa 1013"]),
+    ("--temperature-c", "293.15", ["--temperature-c 293.15 °C", "kelvin", "--temperature-c 20.00"]),
+    ("--temperature-c", "68", ["Fahrenheit", "--temperature-c 20.0"]),
 ])
 def test_ambient_options_out_of_range_are_refused_in_the_unit_typed(capsys, tmp_path, option, value, words):
     # refused before the port is opened: sim:// would otherwise start a simulated board

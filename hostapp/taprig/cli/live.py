@@ -6,6 +6,8 @@ import math
 import sys
 import time
 
+import numpy as np
+
 from taprig.reduce import ScanFlag, finite_mean
 from taprig.runtime.acquisition import LiveState
 
@@ -17,7 +19,13 @@ def live_line(state: LiveState) -> str:
     if b is not None:
         parts.append(f"q {finite_mean(b.q_pa):7.1f} Pa")
         flowing = (b.scan_flags & ScanFlag.NO_FLOW) == 0
-        if flowing.mean() > 0.5:  # speed and Re of wind-off noise (q ≈ 0, either sign) mean nothing
+        beyond = (b.scan_flags & ScanFlag.BEYOND_RIG) != 0
+        if beyond.mean() > 0.5:  # a speed the rig cannot make: say so, show no speed, Re or coefficient
+            parts.append("IMPLAUSIBLE: beyond what the rig can make (check the calibration and the sensors)")
+            flowing = np.zeros_like(flowing)
+        elif ((b.scan_flags & ScanFlag.REVERSED) != 0).mean() > 0.5:
+            parts.append("no flow: q negative beyond its noise (pitot lines swapped?)")
+        elif flowing.mean() > 0.5:  # speed and Re of wind-off noise (q ≈ 0, either sign) mean nothing
             parts.append(f"V {finite_mean(b.v_ms[flowing]):5.1f} m/s")
             parts.append(f"Re {finite_mean(b.re[flowing]):8.2e}")
         else:
@@ -25,13 +33,13 @@ def live_line(state: LiveState) -> str:
         alpha = finite_mean(b.alpha_rad)
         if math.isfinite(alpha):
             parts.append(f"α {math.degrees(alpha):5.1f}°")
-        cl = finite_mean(b.cl)
+        cl = finite_mean(b.cl[flowing]) if flowing.any() else math.nan
         if math.isfinite(cl):
             parts.append(f"Cl {cl:6.3f}  Cd_p {finite_mean(b.cd_p):6.3f}  Cm¼ {finite_mean(b.cm_qc):6.3f}")
-        if b.mass_flow_kg_s is not None and math.isfinite(finite_mean(b.mass_flow_kg_s)):
-            parts.append(f"ṁ {finite_mean(b.mass_flow_kg_s) * 1000:7.3f} g/s")
-        if b.cl_balance is not None and math.isfinite(finite_mean(b.cl_balance)):
-            parts.append(f"Cl(balance) {finite_mean(b.cl_balance):6.3f}")
+        for values, fmt in ((b.mass_flow_kg_s, "ṁ {:7.3f} g/s"), (b.cl_balance, "Cl(balance) {:6.3f}")):
+            value = finite_mean(values[flowing]) if values is not None and flowing.any() else math.nan
+            if math.isfinite(value):
+                parts.append(fmt.format(value * (1000 if fmt.startswith("ṁ") else 1)))
         if b.reference_note:
             parts.append(b.reference_note)
         if b.calibration_warning:

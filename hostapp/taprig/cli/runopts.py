@@ -75,6 +75,40 @@ def load_calibration_arg(path: str | None, rig: Rig | None = None, accept_failed
     return calibration
 
 
+#: Room pressures anywhere people run a bench tunnel [hPa]: the highest habitation to below sea level, with margin
+#: (common practice: 1013.25 hPa at sea level, about 330 hPa at 8800 m).
+ROOM_HPA = (300.0, 1100.0)
+#: Room air temperatures a bench rig runs in [°C] (common practice).
+ROOM_C = (-30.0, 60.0)
+
+
+def pressure_slip(hpa: float) -> str:
+    """Why a room pressure in hPa is implausible, naming the likely unit slip; "" when it is plausible."""
+    low, high = ROOM_HPA
+    if low <= hpa <= high:
+        return ""
+    if 100 * low <= hpa <= 100 * high:
+        return f"no room is at that pressure ({low:g}–{high:g} hPa); this looks like pascals typed as hPa: " \
+               f"--pressure-hpa {hpa / 100:g}"
+    if low / 10 <= hpa <= high / 10:
+        return f"no room is at that pressure ({low:g}–{high:g} hPa); this looks like kilopascals: " \
+               f"--pressure-hpa {hpa * 10:g}"
+    return f"no room is at that pressure: expected {low:g}–{high:g} hPa (1013 at sea level)"
+
+
+def air_temperature_slip(celsius: float) -> str:
+    """Why a room air temperature in °C is implausible, naming the likely unit slip; "" when it is plausible."""
+    low, high = ROOM_C
+    if low <= celsius <= high:
+        return ""
+    if 273.15 + low <= celsius <= 273.15 + high:
+        return f"a room is at {low:g} to {high:g} °C; this looks like kelvin: --temperature-c {celsius - 273.15:.2f}"
+    if 32 + 1.8 * low <= celsius <= 32 + 1.8 * high:
+        return f"a room is at {low:g} to {high:g} °C; this looks like Fahrenheit: " \
+               f"--temperature-c {(celsius - 32) / 1.8:.1f}"
+    return f"expected a room air temperature of {low:g} to {high:g} °C"
+
+
 def check_ambient_options(args: argparse.Namespace, rig: Rig) -> None:
     """Refuse ambient options out of range, in the units they were typed in (exit 2: a bad command line)."""
     from taprig.physics.constants import ZERO_CELSIUS
@@ -83,10 +117,18 @@ def check_ambient_options(args: argparse.Namespace, rig: Rig) -> None:
 
     if args.pressure_hpa is not None and not (args.pressure_hpa > 0 and math.isfinite(args.pressure_hpa)):
         raise UserError(f"--pressure-hpa {args.pressure_hpa:g} hPa: expected a room pressure > 0 hPa", 2)
+    if args.pressure_hpa is not None:
+        slip = pressure_slip(args.pressure_hpa)
+        if slip:
+            raise UserError(f"--pressure-hpa {args.pressure_hpa:g} hPa: {slip}", 2)
     t = args.temperature_c
     if t is not None and not (t > -ZERO_CELSIUS and math.isfinite(t)):
         raise UserError(f"--temperature-c {t:g} °C: expected a temperature above absolute zero "
                         f"({-ZERO_CELSIUS:g} °C)", 2)
+    if t is not None and rig.fluid.medium is Medium.AIR:
+        slip = air_temperature_slip(t)
+        if slip:
+            raise UserError(f"--temperature-c {t:g} °C: {slip}", 2)
     low, high = WATER_MIN_TEMPERATURE - ZERO_CELSIUS, WATER_MAX_TEMPERATURE - ZERO_CELSIUS
     if t is not None and rig.fluid.medium is Medium.WATER and not low <= t <= high:
         raise UserError(f"--temperature-c {t:g} °C: the water properties are known for {low:g} to {high:g} °C "

@@ -28,6 +28,11 @@ class ScanFlag(IntFlag):
     ``NO_INTEGRAL``: too few usable taps to integrate; Cl, Cd_p, Cm are NaN.
     ``COMPRESSIBLE``: Mach above 0.3, where Cp = (p − p∞)/q by the incompressible q stops being accurate.
     ``MISSING_TAPS``: the block does not stream every tap channel of the rig.
+    ``REVERSED``: q (or a venturi's differential) negative beyond its noise: the pitot lines swapped, or flow the
+    wrong way; also NO_FLOW.
+    ``BEYOND_RIG``: a speed above what the rig's fan can make (``[operating] max_speed_m_s``, 10 % margin) or a
+    Mach number above the rig's limit (``max_mach``): not a plausible measurement (a bad calibration, a wrong
+    sensor); shown as implausible, never as a plain number.
     """
 
     NO_FLOW = 1 << 0
@@ -39,6 +44,8 @@ class ScanFlag(IntFlag):
     NO_INTEGRAL = 1 << 6
     COMPRESSIBLE = 1 << 7
     MISSING_TAPS = 1 << 8
+    REVERSED = 1 << 9
+    BEYOND_RIG = 1 << 10
 
 
 class ChannelFlag(IntFlag):

@@ -228,6 +228,7 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
     flags |= int(mean_flags[0])
     p_inf = plan.static_absolute.evaluate(p_mean[None, :])[:, 0]
     v, re, mach = (float(x[0]) for x in reducer.flow(np.array([q]), p_inf))
+    flags |= int(reducer.plausibility_flags(plan, np.array([q]), np.array([v]), np.array([mach]))[0])
     usable_q = np.isfinite(cp).any()
     if usable_q:
         dq = _dq_dp(reducer, plan, plan.taps.evaluate(p_mean[None, :])[0], q)

@@ -182,6 +182,7 @@ class Reducer:
         alpha = self.alpha_array(alpha_rad, counts.shape[0])
         v, re, mach = self.flow(q, plan.static_absolute.evaluate(p)[:, 0])
         scan_flags |= np.where(compressibility_flag(mach), ScanFlag.COMPRESSIBLE, 0).astype(SCAN_FLAG_DTYPE)
+        scan_flags |= self.plausibility_flags(plan, q, v, mach)
         cl = cd = cm = np.full(counts.shape[0], np.nan)
         if self.layout.contour is not None:
             coeffs, integral_flags = plain_coefficients(self.layout.contour, cp, tap_ok, alpha, self.options.min_taps)
@@ -284,6 +285,18 @@ class Reducer:
             mach = np.full_like(v, np.nan)
         re = reynolds_number(fluid.density, v, length, fluid.viscosity) if np.isfinite(length) else np.full_like(v, np.nan)
         return v, re, mach
+
+    def plausibility_flags(self, plan: ColumnPlan, q: np.ndarray, v: np.ndarray, mach: np.ndarray) -> np.ndarray:
+        """REVERSED where q < −(no-flow threshold); BEYOND_RIG where V > 1.1 × the rig's max speed or M > its
+        max Mach (``[operating]``)."""
+        op = self.rig.operating
+        with np.errstate(invalid="ignore"):
+            reversed_ = q < -plan.q_threshold
+            beyond = np.abs(mach) > op.max_mach
+            if op.max_speed is not None:
+                beyond |= np.abs(v) > 1.1 * op.max_speed
+        return (np.where(reversed_, ScanFlag.REVERSED, 0) | np.where(beyond, ScanFlag.BEYOND_RIG, 0)).astype(
+            SCAN_FLAG_DTYPE)
 
     def balance(self, plan: ColumnPlan, p: np.ndarray, q: np.ndarray):
         """Balance lift [N] and Cl_balance = L / (q c b) [-] per scan, or (None, None) without a lift balance."""

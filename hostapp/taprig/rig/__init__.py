@@ -98,6 +98,7 @@ from taprig.rig.model import (
     Link,
     Measures,
     Medium,
+    Operating,
     Reference,
     Rig,
     RigKind,
@@ -120,7 +121,7 @@ from taprig.rig.sensors import (
 __all__ = [
     "FORMAT_VERSION", "Actuator", "AreaTable", "Balance", "Calibration", "CalibrationInput", "CalibrationLevel", "Channel",
     "ChannelCalibration", "Conversion", "Coordinates", "CountsSource", "DifferentialSensor", "DigitalBridgeSensor",
-    "DriftResult", "Fluid", "Geometry", "LinearSensor", "Link", "Manometer", "ManometerReading", "Measures", "Medium",
+    "DriftResult", "Fluid", "Geometry", "LinearSensor", "Link", "Manometer", "ManometerReading", "Measures", "Medium", "Operating",
     "Quantity", "RatiometricSensor", "Reference", "Rig", "RigError", "RigIssue", "RigKind", "Section", "Sensor",
     "SensorBase", "SpanFit", "StaticSource", "Surface", "Tap", "TapLayout", "ZeroResult", "apply_calibration", "build_calibration",
     "calibrate", "calibration_from_text", "calibration_to_text", "capabilities", "compare_with_description",

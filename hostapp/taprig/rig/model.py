@@ -92,6 +92,13 @@ class Fluid(Frozen):
     def _water_needs_temperature(self) -> Fluid:
         if self.medium is Medium.WATER and self.temperature is None:
             raise ValueError("a water rig needs temperature_c (water density depends on it)")
+        p = self.ambient_pressure
+        if p is not None and not 30000.0 <= p <= 110000.0:  # a room at 300–1100 hPa (common practice)
+            hint = f"; {p:g} looks like hPa: ambient_pressure_pa = {p * 100:g}" if 300.0 <= p <= 1100.0 else ""
+            raise ValueError(f"ambient_pressure_pa {p:g}: no room is at that pressure (30000–110000 Pa){hint}")
+        if self.medium is Medium.AIR and self.temperature is not None and not 243.15 <= self.temperature <= 333.15:
+            raise ValueError(f"temperature_c {self.temperature - 273.15:g}: expected a room air temperature of "
+                             "−30 to 60 °C (in °C, not kelvin or Fahrenheit)")
         return self
 
 
@@ -323,6 +330,23 @@ class Actuator(Frozen):
         return math.radians(value) if self.kind is ActuatorKind.ANGLE else value
 
 
+class Operating(Frozen):
+    """What the rig is built to do: the speed its sensors are sized for and the limits past which a number is not
+    believed (``[operating]``, optional)."""
+
+    design_speed: float | None = Field(None, alias="design_speed_m_s", gt=0.0,
+                                       description="speed the sensors are sized for [m/s] (taprig check predicts u there)")
+    max_speed: float | None = Field(None, alias="max_speed_m_s", gt=0.0,
+                                    description="highest speed the fan can make [m/s]; above 1.1× it a speed is flagged")
+    max_mach: float = Field(0.3, gt=0.0, le=0.8, description="Mach number past which a value is flagged [-]")
+
+    @model_validator(mode="after")
+    def _design_within_max(self) -> Operating:
+        if self.design_speed is not None and self.max_speed is not None and self.design_speed > self.max_speed:
+            raise ValueError(f"design_speed_m_s {self.design_speed:g} is above max_speed_m_s {self.max_speed:g}")
+        return self
+
+
 class Link(Frozen):
     """How to open and re-find the board."""
 
@@ -350,6 +374,7 @@ class Rig(Frozen):
     section: Section | None = None
     balance: Balance | None = None
     actuators: tuple[Actuator, ...] = ()
+    operating: Operating = Operating()
     link: Link = Link()
 
     _source_text: str = PrivateAttr("")

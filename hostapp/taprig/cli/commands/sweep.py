@@ -92,6 +92,9 @@ def _fmt(c, name: str, width: int, digits: int) -> str:
 def point_line(point) -> str:
     """One row of the sweep table: commanded α, q, V, Re, Cl (shape fit, wall-corrected) ± u, Cl (trapezoid)."""
     m = point.mean
+    if "BEYOND_RIG" in m.flag_names:  # a speed the rig cannot make: no plain numbers
+        return (f"{math.degrees(point.alpha_rad):6.1f}  IMPLAUSIBLE: q {m.q_pa:.3g} Pa is beyond what the rig can "
+                "make (check the calibration and the sensors)")
     best = m.corrected or m.default
     cl = f"{best.cl:6.3f} ± {best.u_cl:5.3f}" if best is not None else f"{'–':>14}"
     return (f"{math.degrees(point.alpha_rad):6.1f}  {m.q_pa:7.1f}  {m.v_ms:5.1f}  {m.re:8.2e}  {cl:>15}  "
