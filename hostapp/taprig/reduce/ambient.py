@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 from taprig.physics.air import AirState
 from taprig.physics.constants import STANDARD_PRESSURE, require_in_range, require_positive
-from taprig.physics.venturi import ISO5167_MACHINED_VENTURI_C
+from taprig.physics.venturi import ISO5167_MACHINED_VENTURI_C, ISO5167_VENTURI_C_U_REL
 from taprig.physics.walls import SpanOrientation
 from taprig.physics.water import water_density, water_viscosity
 
@@ -87,6 +87,16 @@ class ReduceOptions:
         Apply the 2-D wall corrections to block means when the rig gives the tunnel height and width.
     discharge_coefficient : float
         Venturi discharge coefficient C [-] for the ISO 5167-4 flow rate (default 0.995, machined convergent).
+    discharge_coefficient_u_rel : float
+        Its relative standard uncertainty [-] (default 0.5 %: the standard's 1 % at about 95 %).
+    venturi_diameter_u_rel : float
+        Relative standard uncertainty of the throat and inlet diameters [-] (default 0.05 %: a machined part
+        measured with a bore gauge, from memory).
+    ambient_pressure_u : float
+        Standard uncertainty of the room pressure when no channel measures it [Pa] (default 50 Pa: a typed
+        barometer reading, common practice).
+    temperature_u : float
+        Standard uncertainty of the run's temperature [K] (default 0.5 K: a room thermometer, common practice).
     """
 
     alpha_rad: float = 0.0
@@ -96,6 +106,10 @@ class ReduceOptions:
     span_orientation: SpanOrientation = SpanOrientation.SPANS_WIDTH
     wall_corrections: bool = True
     discharge_coefficient: float = ISO5167_MACHINED_VENTURI_C
+    discharge_coefficient_u_rel: float = ISO5167_VENTURI_C_U_REL
+    venturi_diameter_u_rel: float = 0.0005
+    ambient_pressure_u: float = 50.0
+    temperature_u: float = 0.5
 
     def __post_init__(self) -> None:
         require_positive("no_flow_factor", self.no_flow_factor, "")

@@ -133,10 +133,13 @@ def _flow_assumptions(rig: Rig) -> tuple[str, ...]:
     """How the speed follows from q (the isentropic relation for a gas, Bernoulli for a liquid)."""
     from taprig.rig import Medium
 
-    if rig.fluid.medium is Medium.WATER:
-        return ("speed from q by Bernoulli (incompressible liquid)",)
-    return ("speed from q by the isentropic relation; the run's temperature is the stagnation temperature "
-            "(air at rest in the room or settling chamber)",)
+    out = ("speed from q by Bernoulli (incompressible liquid)",) if rig.fluid.medium is Medium.WATER else \
+        ("speed from q by the isentropic relation; the run's temperature is the stagnation temperature "
+         "(air at rest in the room or settling chamber)",)
+    if rig.kind is RigKind.VENTURI:
+        out += ("venturi flow by ISO 5167-4: C = 0.995 ± 0.5 % (machined convergent; below Re_D 2e5 it needs its "
+                "own calibration), density at the upstream tap from its pressure and the run's temperature",)
+    return out
 
 
 @dataclass(frozen=True, eq=False)

@@ -26,11 +26,12 @@ from taprig.physics.integration import ShapeFitIntegrator, SectionWeights, trape
 from taprig.physics.uncertainty import effective_sample_count, propagate_covariance
 from taprig.physics.walls import WallCorrection, correct_2d
 from taprig.protocol import RawBlock
-from taprig.rig import RigKind
+from taprig.physics.venturi import venturi_expansibility_u_rel, venturi_flow_u_rel
+from taprig.rig import Medium, RigKind
 from taprig.reduce.block import frozen_array
 from taprig.reduce.flags import ScanFlag, count_flags, flag_names
 from taprig.reduce.layout import ColumnPlan
-from taprig.reduce.references import ReduceError
+from taprig.reduce.references import ONE, ReduceError
 
 
 @dataclass(frozen=True, eq=False)
@@ -93,6 +94,7 @@ class ReducedMean:
     mass_flow_kg_s: float | None = None
     cp_ideal: np.ndarray | None = None
     scan_flag_counts: dict = field(default_factory=dict)
+    u_mass_flow_kg_s: float | None = None
     assumptions: tuple[str, ...] = ()
     reference_note: str = ""
     calibration_warning: str = ""
@@ -191,6 +193,43 @@ def _static_factor_covariance(layout) -> np.ndarray | float:
     return layout.static_factor_u**2 * np.outer(s, s)
 
 
+def _venturi_inputs(reducer, plan: ColumnPlan, p_mean: np.ndarray):
+    """β, Δp [Pa], p1 [Pa] of a venturi's mean, and the relative standard uncertainties of C, ε, d (= D's)."""
+    ven, opts = reducer.layout.venturi, reducer.options
+    beta = float(np.sqrt(ven.throat_area / ven.inlet_area))
+    delta = plan.taps.evaluate(p_mean[None, :])[0]
+    dp = max(float(-delta[ven.throat]), 0.0)
+    p1 = float(reducer.upstream_pressure(plan, p_mean[None, :])[0])
+    u_eps = float(venturi_expansibility_u_rel(beta, dp, p1)) if reducer.rig.fluid.medium is Medium.AIR else 0.0
+    return beta, dp, p1, opts.discharge_coefficient_u_rel, u_eps, opts.venturi_diameter_u_rel
+
+
+def venturi_q_u_rel(reducer, plan: ColumnPlan, p_mean: np.ndarray, q: float) -> float:
+    """Relative standard uncertainty of the venturi's inlet q from C, ε, d and D (not the pressures, which the
+    Cp budget carries): q1 ∝ (C ε)² Δp β⁴/(1 − β⁴), so u²/q² = 4u²_C + 4u²_ε + (4/(1 − β⁴))² (u²_d + u²_D)
+    (ISO 5167-1 §8.2's sensitivities, applied to q1 = q_m²/(2 ρ1 A1²))."""
+    beta, _, _, u_c, u_eps, u_d = _venturi_inputs(reducer, plan, p_mean)
+    k = 4.0 / (1.0 - beta**4)
+    return float(np.sqrt(4 * u_c**2 + 4 * u_eps**2 + k**2 * 2 * u_d**2))
+
+
+def venturi_mass_flow_u(reducer, plan: ColumnPlan, p_mean: np.ndarray, cov_p: np.ndarray, mass: float) -> float:
+    """Standard uncertainty of the venturi's mass flow [kg/s] by ISO 5167-1 §8.2: C, ε, d, D, Δp (from the
+    channels' covariance) and ρ1 (from p1's, the room pressure's and the temperature's uncertainties)."""
+    ven, opts = reducer.layout.venturi, reducer.options
+    beta, dp, p1, u_c, u_eps, u_d = _venturi_inputs(reducer, plan, p_mean)
+    n = plan.taps.matrix(plan.scale.size)
+    u_dp = float(np.sqrt(max(propagate_covariance(n[ven.throat][None, :], cov_p)[0, 0], 0.0)))
+    s = plan.static_absolute.matrix(plan.scale.size)
+    u_p1 = float(np.sqrt(max(propagate_covariance(s, cov_p)[0, 0], 0.0)))
+    u_rho = 0.0
+    if reducer.rig.fluid.medium is Medium.AIR:
+        u_room = opts.ambient_pressure_u if ONE in reducer.layout.static_absolute else 0.0  # typed, not measured
+        u_rho = float(np.sqrt((np.hypot(u_p1, u_room) / p1) ** 2 + (opts.temperature_u / reducer.ambient.temperature) ** 2))
+    rel = venturi_flow_u_rel(beta, u_c, u_eps, u_d, u_d, u_dp / dp if dp > 0 else np.inf, u_rho)
+    return float(rel * mass)
+
+
 def _dq_dp(reducer, plan: ColumnPlan, delta: np.ndarray, q: float) -> np.ndarray:
     """∂q/∂p per column: the q form's coefficients, or for a venturi q ∝ Δp (inlet − throat) at fixed ε."""
     if plan.q is not None:
@@ -234,8 +273,12 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
         dq = _dq_dp(reducer, plan, plan.taps.evaluate(p_mean[None, :])[0], q)
         cov_cp = propagate_covariance(cp_jacobian(plan, cp, q, dq), cov_p)
         cov_cp += _static_factor_covariance(reducer.layout)
-        cov_cp[~tap_ok, :] = cov_cp[:, ~tap_ok] = np.nan
         u_q = float(np.sqrt(propagate_covariance(dq[None, :], cov_p)[0, 0]))
+        if reducer.layout.venturi is not None:  # q1 also carries C, ε, d and D (ISO 5167-1 §8.2)
+            rel = venturi_q_u_rel(reducer, plan, p_mean, q)
+            cov_cp += rel**2 * np.outer(np.nan_to_num(cp), np.nan_to_num(cp))
+            u_q = float(np.hypot(u_q, rel * q))
+        cov_cp[~tap_ok, :] = cov_cp[:, ~tap_ok] = np.nan
     else:
         cov_cp = np.full((cp.size, cp.size), np.nan)
         u_q = float("nan")
@@ -246,6 +289,8 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
     lift, cl_balance = reducer.balance(plan, p_mean[None, :], np.array([q]))
     mass = reducer.venturi_flow(cp[None, :], np.array([q]), p_mean[None, :], plan)[0] \
         if reducer.layout.venturi is not None else None
+    u_mass = venturi_mass_flow_u(reducer, plan, p_mean, cov_p, float(mass)) \
+        if mass is not None and np.isfinite(mass) and usable_q else None
     return ReducedMean(
         n_scans=counts.shape[0], used_scans=int(ref_ok.sum()),
         t_ns=(int(block.t_ns[0]), int(block.t_ns[-1])), tap_names=reducer.tap_names,
@@ -255,7 +300,7 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
         excluded_taps=excluded,
         lift_n=float(lift[0]) if lift is not None else None,
         cl_balance=float(cl_balance[0]) if cl_balance is not None else None,
-        mass_flow_kg_s=float(mass) if mass is not None else None,
+        mass_flow_kg_s=float(mass) if mass is not None else None, u_mass_flow_kg_s=u_mass,
         cp_ideal=reducer.layout.venturi.cp_ideal if reducer.layout.venturi is not None else None,
         scan_flag_counts=count_flags(scan_flags, ScanFlag),
         assumptions=reducer.assumptions, reference_note=reducer.reference_note,

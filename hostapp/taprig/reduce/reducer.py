@@ -240,11 +240,24 @@ class Reducer:
         raise ReduceError(f"rig {self.rig.id!r} has no dynamic-pressure source (pitot, or static and total)")
 
     def _venturi_q(self, differential: np.ndarray, plan: ColumnPlan, p: np.ndarray) -> np.ndarray:
-        """Inlet q from the ISO 5167-4 flow of the inlet − throat differential (continuity: V1 = q_m / (ρ A1))."""
-        ven, rho = self.layout.venturi, self.fluid.density
+        """Inlet q from the ISO 5167-4 flow of the inlet − throat differential (continuity: V1 = q_m / (ρ1 A1))."""
+        ven = self.layout.venturi
         mass = self._mass_flow(differential, plan, p)
-        q = dynamic_pressure(rho, mass / (rho * ven.inlet_area))
+        rho1 = self.upstream_density(plan, p)
+        q = dynamic_pressure(rho1, mass / (rho1 * ven.inlet_area))
         return np.where(differential > 0.0, q, differential)  # keep the sign of a reversed differential (no flow)
+
+    def upstream_pressure(self, plan: ColumnPlan, p: np.ndarray) -> np.ndarray:
+        """Absolute pressure at the venturi's upstream tap p1 per scan [Pa] (the room's when not finite)."""
+        p1 = plan.static_absolute.evaluate(p)[:, 0]
+        return np.where(np.isfinite(p1) & (p1 > 0.0), p1, self.ambient.pressure)
+
+    def upstream_density(self, plan: ColumnPlan, p: np.ndarray) -> np.ndarray | float:
+        """Density at the upstream tap ρ1 [kg/m³]: the room air's scaled to p1 at the run's temperature (ideal gas,
+        ISO 5167-1 §5.4.2 asks ρ1 at the upstream tap); a liquid's as it is."""
+        if self.rig.fluid.medium is not Medium.AIR:
+            return self.fluid.density
+        return self.fluid.density * self.upstream_pressure(plan, p) / self.ambient.pressure
 
     def _mass_flow(self, differential: np.ndarray, plan: ColumnPlan, p: np.ndarray) -> np.ndarray:
         ven = self.layout.venturi
@@ -252,10 +265,11 @@ class Reducer:
         dp = np.where(np.isfinite(differential), np.clip(differential, 0.0, None), 0.0)
         eps = 1.0
         if self.rig.fluid.medium is Medium.AIR:
-            p1 = plan.static_absolute.evaluate(p)[:, 0]
-            p1 = np.where(np.isfinite(p1) & (p1 > dp), p1, self.ambient.pressure)
+            p1 = self.upstream_pressure(plan, p)
+            p1 = np.where(p1 > dp, p1, self.ambient.pressure)
             eps = venturi_expansibility(beta_ratio(d, big_d), p1, np.minimum(dp, 0.25 * p1))
-        mass = venturi_mass_flow(d, big_d, dp, self.fluid.density, self.options.discharge_coefficient, eps)
+        mass = venturi_mass_flow(d, big_d, dp, self.upstream_density(plan, p), self.options.discharge_coefficient,
+                                 eps)
         return np.where(np.isfinite(differential), mass, np.nan)
 
     def venturi_flow(self, cp: np.ndarray, q: np.ndarray, p: np.ndarray, plan: ColumnPlan) -> np.ndarray:
