@@ -131,3 +131,18 @@ def test_draw_takes_one_rig(tmp_path: Path, capsys) -> None:
     rigs = [str(RIGS / "cylinder.toml"), str(RIGS / "venturi-8.toml")]
     assert main(["check", *rigs, "--draw", str(tmp_path / "x.png")]) == 2
     assert "--draw draws one rig" in capsys.readouterr().err
+
+
+def test_check_says_what_to_look_at_in_a_valid_rig(tmp_path: Path, capsys) -> None:
+    spare = _sub(NACA, "[[channels]]\nindex = 22", '[[channels]]\nindex = 23\nname = "p23"\nencoding = "u16"\n'
+                 'sensor = "tap"\nmeasures = "gauge"\n\n[[channels]]\nindex = 22')
+    path = tmp_path / "spare.toml"
+    path.write_text(spare, encoding="utf-8")
+    assert main(["check", str(path)]) == 0  # a spare channel is allowed, but said
+    assert "look at: channel p23 (ch23): no tap reads it, nor any reference" in capsys.readouterr().out
+
+
+def test_two_channels_on_one_index_are_marked() -> None:
+    rig, problems = parse_rig_unchecked(_sub(NACA, "index = 22\n", "index = 21\n"), "same.toml")
+    assert problems is not None
+    assert "channels p21 and baro are both on ch21" in [p.text for p in rig_picture(rig).problems]

@@ -283,6 +283,11 @@ def _channel_problems(rig: Rig, marks: list[TapMark]) -> list[Problem]:
     if rig.balance is not None:
         used |= {rig.balance.lift, rig.balance.drag}
     out = []
+    by_index: dict[int, str] = {}
+    for c in rig.channels:
+        if c.index in by_index:
+            out.append(Problem(f"channels {by_index[c.index]} and {c.name} are both on ch{c.index}", channel=c.name))
+        by_index.setdefault(c.index, c.name)
     for c in sorted(rig.channels, key=lambda c: c.index):
         if c.name in used:
             continue
