@@ -146,3 +146,9 @@ def test_two_channels_on_one_index_are_marked() -> None:
     rig, problems = parse_rig_unchecked(_sub(NACA, "index = 22\n", "index = 21\n"), "same.toml")
     assert problems is not None
     assert "channels p21 and baro are both on ch21" in [p.text for p in rig_picture(rig).problems]
+
+
+def test_readings_off_the_drawing_are_named() -> None:
+    ports = rig_picture(load_rig(RIGS / "cambered-balance.toml")).ports
+    assert "balance lift: lift ch8" in [p.label for p in ports]
+    assert "room (barometer): baro ch22" in [p.label for p in rig_picture(load_rig(RIGS / "naca0012-20tap.toml")).ports]

@@ -55,7 +55,7 @@ class TapMark:
 class Port:
     """A reference pressure port or reading: its role, the channels on it and where it is drawn [m]."""
 
-    role: str  # "total", "static", "pitot" (a total − static differential), "room", "inlet"
+    role: str  # "total", "static", "pitot" (a total − static differential), "room", "inlet", "balance"
     label: str  # e.g. "total port: p_total ch1"
     channels: tuple[str, ...]
     indices: tuple[int, ...]
@@ -321,6 +321,9 @@ def _ports(rig: Rig, probe: Point | None, taps: dict[str, TapMark]) -> list[Port
     port("room", "room (barometer)", room, None)
     if gauge and not room:
         out.append(Port("room", f"room: {len(gauge)} gauge channel(s) read against it", (), (), None, None))
+    if rig.balance is not None:
+        port("balance", "balance lift", [rig.balance.lift], None)
+        port("balance", "balance drag", [rig.balance.drag], None)
     if ref.inlet and ref.inlet in taps and taps[ref.inlet].x is not None:
         mark = taps[ref.inlet]
         out.append(Port("inlet", f"reference station: tap {ref.inlet}", (mark.channel,),
