@@ -108,6 +108,8 @@ def test_an_existing_file_is_kept(tmp_path, capsys, monkeypatch):
     (["x.txt"], "a rig file is written as .toml"),
     (["x.toml", "--tunnel-mm", "wide"], "expected HEIGHTxWIDTH in mm"),
     (["x.toml", "--chord-mm", "0"], "--chord-mm"),
+    (["x.toml", "--tap-count", "2"], "expected 3 to 63 taps"),
+    (["x.toml", "--id", "My Rig"], "'My Rig': expected lower-case letters"),
 ])
 def test_bad_command_lines_exit_2(tmp_path, capsys, monkeypatch, argv, message):
     monkeypatch.chdir(tmp_path)

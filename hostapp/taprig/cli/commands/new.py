@@ -45,6 +45,22 @@ def tunnel_size(text: str) -> tuple[float, float]:
     return values[0], values[1]
 
 
+def rig_id_arg(text: str) -> str:
+    """An argparse type: a rig id (lower case, digits, '-', '_', '.')."""
+    why = check_id(text)
+    if why:
+        raise argparse.ArgumentTypeError(f"{text!r}: {why}")
+    return text
+
+
+def tap_count(text: str) -> int:
+    """An argparse type: a number of taps, 3 to 63 (channel 0 is the probe's)."""
+    value = positive_int(text)
+    if not 3 <= value <= 63:
+        raise argparse.ArgumentTypeError(f"expected 3 to 63 taps (channel 0 is the probe's), got {text!r}")
+    return value
+
+
 def register(sub) -> None:
     p = sub.add_parser("new", help="write a commented rig file for an airfoil section from a few answers",
                        description="Write a new rig file (compact form, commented) for an airfoil section: asked at "
@@ -53,7 +69,7 @@ def register(sub) -> None:
     p.add_argument("output", metavar="RIG.toml", help="rig file to write (refused if it exists, unless --force)")
     p.add_argument("--taps", metavar="CSV", help="tap positions: a CSV with a header naming x_c and surface "
                                                   "(name and y_c optional)")
-    p.add_argument("--tap-count", type=positive_int, metavar="N",
+    p.add_argument("--tap-count", type=tap_count, metavar="N",
                    help="no CSV: N taps spread over both surfaces, closer near the leading edge (default 16)")
     p.add_argument("--section", metavar="NACA|CSV", help="NACA 4 digits (0012) or a coordinate CSV (default 0012)")
     p.add_argument("--chord-mm", type=bounded(1, 10000, "mm", low_open=True), metavar="MM", help="chord (default 150)")
@@ -63,7 +79,7 @@ def register(sub) -> None:
     p.add_argument("--tap-range-pa", type=finite_positive, metavar="PA", help="tap sensors' range ± (default 2500)")
     p.add_argument("--pitot-range-pa", type=finite_positive, metavar="PA", help="pitot sensor's range ± (default 1000)")
     p.add_argument("--no-actuators", action="store_true", help="no fan or angle servo on the board")
-    p.add_argument("--id", dest="rig_id", metavar="ID", help="rig id (default: from the file name)")
+    p.add_argument("--id", dest="rig_id", type=rig_id_arg, metavar="ID", help="rig id (default: from the file name)")
     p.add_argument("--name", metavar="TEXT", help="a name for people (default: from the section and taps)")
     p.add_argument("--force", action="store_true", help="write over an existing file")
     p.set_defaults(func=run)
@@ -115,15 +131,16 @@ def _relative(path: Path, start: Path) -> str:
 def _taps(text: str, folder: Path):
     """Taps from a count (``16``) or a CSV file of positions."""
     if text.strip().isdigit():
-        return spread_taps(int(text)), f"{int(text)} taps spread over both surfaces"
+        count = tap_count(text.strip())
+        return spread_taps(count), f"{count} taps spread over both surfaces"
     path = folder / text
     if not path.is_file():
         raise ValueError(f"{text}: expected a number of taps or a CSV file of tap positions that exists")
     taps, issues = taps_from_csv(read_text_file(path, "tap file", "CSV"), str(path))
     if issues:
         raise RigError(str(path), issues)
-    if len(taps) < 3:
-        raise ValueError(f"{path}: a section needs at least 3 taps, the file has {len(taps)}")
+    if not 3 <= len(taps) <= 63:
+        raise ValueError(f"{path}: expected 3 to 63 taps (channel 0 is the probe's), the file has {len(taps)}")
     return taps, path.name
 
 
