@@ -152,3 +152,15 @@ def test_readings_off_the_drawing_are_named() -> None:
     ports = rig_picture(load_rig(RIGS / "cambered-balance.toml")).ports
     assert "balance lift: lift ch8" in [p.label for p in ports]
     assert "room (barometer): baro ch22" in [p.label for p in rig_picture(load_rig(RIGS / "naca0012-20tap.toml")).ports]
+
+
+@pytest.mark.parametrize("name", ["cylinder", "venturi-8", "bump-channel", "cambered-balance"])
+def test_every_kind_draws_with_every_tap_labelled(tmp_path: Path, name: str) -> None:
+    from taprig.cli.rig_drawing import draw_rig
+
+    picture = rig_picture(load_rig(RIGS / f"{name}.toml"))
+    text = draw_rig(picture, tmp_path / f"{name}.svg", values={picture.taps[0].name: "Cp -0.42"}).read_text(encoding="utf-8")
+    for tap in picture.taps:
+        assert tap.label in text, tap.label
+    assert f"{picture.taps[0].label}  Cp -0.42" in text  # a live value drawn beside its tap
+    assert "nothing suspicious found" in text
