@@ -9,9 +9,10 @@ Public API (re-exported here)
 Loading and errors
     ``load_rig(path) -> Rig``; ``parse_rig(text, source="<string>", attachments=None) -> Rig``
     (``attachments`` maps a CSV file name named by the rig to its text, so parsing stays pure);
-    ``parse_rig_unchecked(text, source, attachments) -> (Rig, RigError | None)`` keeps a rig whose tables are
-    each valid but disagree (to draw it with its mistakes marked). Both read the long form (one table per channel
-    and tap) and the compact forms of :mod:`taprig.rig.compact` (channel groups, a tap table or tap CSV);
+    ``parse_rig_unchecked(text, source, attachments) -> (Rig, RigError | None)`` and ``load_rig_unchecked(path)``
+    keep a rig whose tables are each valid but disagree (to draw it with its mistakes marked). All read the long
+    form (one table per channel and tap) and the compact forms of :mod:`taprig.rig.compact` (channel groups, a
+    tap table or tap CSV);
     ``RigError`` (``.source``, ``.issues``: list of ``RigIssue(key, message, value)``; ``str()`` names the file,
     every key path such as ``taps[3].x_c``, the bad value and what was expected).
 The model (pydantic v2, frozen, ``extra="forbid"``)
@@ -86,7 +87,7 @@ from taprig.rig.fitting import (
     manometer_pressure,
     wind_off_zero,
 )
-from taprig.rig.loader import load_rig, parse_coordinates_csv, parse_rig, parse_rig_unchecked
+from taprig.rig.loader import load_rig, load_rig_unchecked, parse_coordinates_csv, parse_rig, parse_rig_unchecked
 from taprig.rig.model import (
     Actuator,
     AreaTable,
@@ -125,6 +126,6 @@ __all__ = [
     "Quantity", "RatiometricSensor", "Reference", "Rig", "RigError", "RigIssue", "RigKind", "Section", "Sensor",
     "SensorBase", "SpanFit", "StaticSource", "Surface", "Tap", "TapLayout", "ZeroResult", "apply_calibration", "build_calibration",
     "calibrate", "calibration_from_text", "calibration_to_text", "capabilities", "compare_with_description",
-    "conversion_for", "cross_check", "drift_check", "fit_span", "load_calibration", "load_rig", "manometer_pressure",
+    "conversion_for", "cross_check", "drift_check", "fit_span", "load_calibration", "load_rig", "load_rig_unchecked", "manometer_pressure",
     "parse_coordinates_csv", "parse_input_csv", "parse_input_toml", "parse_rig", "parse_rig_unchecked", "tap_layout", "wind_off_zero",
 ]
