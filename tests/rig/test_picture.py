@@ -150,7 +150,7 @@ def test_two_channels_on_one_index_are_marked() -> None:
 
 def test_readings_off_the_drawing_are_named() -> None:
     ports = rig_picture(load_rig(RIGS / "cambered-balance.toml")).ports
-    assert "balance lift: lift ch8" in [p.label for p in ports]
+    assert "balance lift: lift ch10" in [p.label for p in ports]
     assert "room (barometer): baro ch22" in [p.label for p in rig_picture(load_rig(RIGS / "naca0012-20tap.toml")).ports]
 
 
