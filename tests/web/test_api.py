@@ -81,6 +81,15 @@ def test_describe_states_what_the_numbers_rest_on(live):
     assert live.get("/api/live/describe", key="control").get_json()["role"] == "control"
 
 
+def test_the_rig_picture_is_served_at_the_angle_asked(live):
+    level = live.get("/api/live/picture?alpha_deg=0").get_json()
+    turned = live.get("/api/live/picture?alpha_deg=10").get_json()
+    assert {t["name"] for t in level["taps"]} == {t.name for t in live.rig.taps}
+    assert level["outline"] != turned["outline"] and turned["alpha"] == pytest.approx(math.radians(10))
+    assert live.get("/api/live/picture?alpha_deg=abc").status_code == 400
+    assert live.get("/api/live/picture?alpha_deg=1e9").status_code == 400
+
+
 # -- controls ----------------------------------------------------------------------------------------------------
 def test_setpoints_within_limits_in_the_operators_units(live):
     assert live.post("/api/live/setpoint", {"actuator": "alpha", "value": 6}).status_code == 200

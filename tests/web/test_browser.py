@@ -126,7 +126,7 @@ def test_the_page_runs_the_rig_and_the_stop_reaches_the_board(browser, bench):
     try:
         page.until("() => window.taprig.frames > 3")
         for view in ("#cp-chart canvas", "#tap-chart canvas", "#trend-chart canvas", "#lift-chart canvas", "#linkcard",
-                     "#controls", "#stop", "#sessions-card"):
+                     "#controls", "#stop", "#sessions-card", "#rig-canvas"):
             assert page.page.is_visible(view), view
         assert "guards on" in page.text("#safety")
         assert "NO FLOW" in page.text("#st-flow")

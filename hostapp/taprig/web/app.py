@@ -268,6 +268,21 @@ def create_app(sources: Sources, keys: Keys, log: Callable[[str], None] | None =
         frame = sources.get(name).latest_frame()
         return Response(frame.text(), mimetype="application/json")
 
+    @app.get("/api/<name>/picture")
+    def picture(name: str):
+        from taprig.rig.picture import rig_picture
+
+        need("view")
+        display = sources.get(name)
+        alpha = request.args.get("alpha_deg", "0")
+        try:
+            alpha_rad = math.radians(float(alpha))
+        except ValueError:
+            raise RequestProblem(f"alpha_deg must be a number of degrees, got {alpha!r}") from None
+        if not (math.isfinite(alpha_rad) and abs(alpha_rad) <= math.pi / 2):
+            raise RequestProblem("alpha_deg must be between -90 and 90")
+        return jsonify(rig_picture(display.rig, alpha_rad).to_dict())
+
     @app.get("/api/<name>/points")
     def points(name: str):
         need("view")

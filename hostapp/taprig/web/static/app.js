@@ -338,6 +338,9 @@ function onFrame(f) {
   if (f.trend && (!trend.length || f.trend[0] / 1e9 > trend[trend.length - 1][0])) trend.push([f.trend[0] / 1e9, f.trend[1], f.trend[2]]);
   const r = shownReading(f);
   drawStatus(f, r); drawReadings(f, r); drawCp(r); drawTaps(r); drawTrend();
+  const alpha = r && r.flow && r.flow.alpha_deg !== null && r.flow.alpha_deg !== undefined ? Math.round(r.flow.alpha_deg * 10) / 10 : 0;
+  if (alpha !== pictureAlpha) loadPicture(alpha);
+  if (stats.frames % 5 === 0) drawRig(r);  // a few times a second is enough for numbers to be read
   if (f.points !== pointsVersion) { pointsVersion = f.points; loadPoints(); }
   if (f.host_ns && f.mode === "live") {
     requestAnimationFrame(() => {
@@ -348,6 +351,81 @@ function onFrame(f) {
       stats.lastDrawn = { seq: f.seq, window: f.reading && f.reading.window, cl: $("n-cl").textContent, q: $("n-q").textContent };
     });
   }
+}
+
+// ---- the rig, to scale, with each tap's live value -------------------------------------------------------------
+let picture = null, pictureAlpha = null;
+async function loadPicture(alphaDeg) {
+  pictureAlpha = alphaDeg;
+  try { picture = await api(`/api/${source}/picture?alpha_deg=${alphaDeg}`); } catch (e) { picture = null; return; }
+  const ul = $("rig-problems"); ul.replaceChildren();
+  for (const q of picture.problems) { const li = document.createElement("li"); li.textContent = "⚠ " + q.text; ul.appendChild(li); }
+  for (const n of picture.notes) { const li = document.createElement("li"); li.textContent = n; li.className = "note"; ul.appendChild(li); }
+}
+function tapValue(r, i) {
+  if (!r || i === undefined) return "";
+  let value;
+  if (unit === "Cp") value = r.taps.cp && r.taps.cp[i] !== null ? r.taps.cp[i].toFixed(2) : "–";
+  else { const v = r.taps.p_pa.value[i]; value = v === null ? "–" : fmt(v * (rig.units[unit] || 1), 1); }
+  return r.taps.state[i] !== "ok" ? `${value} (${r.taps.state[i]})` : value;
+}
+// The model fills the drawing; tap labels sit in a row above (taps facing up) and below, in x order, each joined
+// to its tap by a thin line, so even a crowded leading edge stays readable.
+function drawRig(r) {
+  const cv = $("rig-canvas"); if (!picture) return;
+  const dpr = window.devicePixelRatio || 1, cssW = Math.max(320, cv.clientWidth), cssH = Math.round(Math.min(460, Math.max(300, cssW * 0.42)));
+  if (cv.width !== Math.round(cssW * dpr)) { cv.width = Math.round(cssW * dpr); cv.height = Math.round(cssH * dpr); cv.style.height = cssH + "px"; }
+  const ctx = cv.getContext("2d"); ctx.setTransform(dpr, 0, 0, dpr, 0, 0);
+  const W = cssW, H = cssH, band = 100, side = 20;
+  const placed = picture.taps.filter((t) => t.x !== null);
+  const pts = [...picture.outline, ...placed.map((t) => [t.x, t.y]), ...(picture.pivot ? [picture.pivot] : [])];
+  if (!pts.length) return;
+  let [x0, x1, y0, y1] = [Math.min(...pts.map((p) => p[0])), Math.max(...pts.map((p) => p[0])), Math.min(...pts.map((p) => p[1])), Math.max(...pts.map((p) => p[1]))];
+  const mx = 0.06 * (x1 - x0 || 1), my = 0.15 * (y1 - y0 || (x1 - x0) * 0.2 || 1);
+  x0 -= mx; x1 += mx; y0 -= my; y1 += my;
+  const k = Math.min((W - 2 * side) / (x1 - x0), (H - 2 * band) / (y1 - y0));
+  const cx = side + ((W - 2 * side) - (x1 - x0) * k) / 2, cy = band + ((H - 2 * band) - (y1 - y0) * k) / 2;
+  const X = (x) => cx + (x - x0) * k, Y = (y) => H - cy - (y - y0) * k;
+  ctx.clearRect(0, 0, W, H);
+  ctx.save(); ctx.beginPath(); ctx.rect(0, band - 10, W, H - 2 * band + 20); ctx.clip();
+  ctx.lineWidth = 3; ctx.strokeStyle = C.ink;
+  for (const wall of picture.walls) { ctx.beginPath(); wall.forEach(([x, y], i) => (i ? ctx.lineTo(X(x), Y(y)) : ctx.moveTo(X(x), Y(y)))); ctx.stroke(); }
+  if (picture.outline.length) {
+    ctx.beginPath(); picture.outline.forEach(([x, y], i) => (i ? ctx.lineTo(X(x), Y(y)) : ctx.moveTo(X(x), Y(y))));
+    ctx.closePath(); ctx.fillStyle = "#d8d8d2"; ctx.fill(); ctx.lineWidth = 2; ctx.stroke();
+  }
+  if (picture.pivot) { ctx.fillStyle = C.ink; ctx.beginPath(); ctx.arc(X(picture.pivot[0]), Y(picture.pivot[1]), 5, 0, 2 * Math.PI); ctx.fill(); }
+  ctx.restore();
+  const byName = new Map(rig.taps.map((t, i) => [t.name, i]));
+  for (const group of [placed.filter((t) => t.ny >= 0), placed.filter((t) => t.ny < 0)]) {
+    if (!group.length) continue;
+    const top = group[0].ny >= 0;
+    group.sort((a, b) => a.x - b.x);
+    const slot = (W - 2 * side) / group.length, vertical = slot < 62;
+    group.forEach((t, j) => {
+      const px = X(t.x), py = Y(t.y), bad = t.problems.length > 0;
+      const sx = side + slot * (j + 0.5), sy = top ? band - 8 : H - band + 8;
+      ctx.strokeStyle = "#999"; ctx.lineWidth = 1; ctx.beginPath(); ctx.moveTo(px, py); ctx.lineTo(sx, sy); ctx.stroke();
+      ctx.fillStyle = bad ? C.vermillion : (t.surface === "lower" ? "#fff" : C.blue);
+      ctx.strokeStyle = bad ? C.vermillion : (t.surface === "lower" ? C.vermillion : C.blue); ctx.lineWidth = 2;
+      ctx.beginPath(); ctx.arc(px, py, 4.5, 0, 2 * Math.PI); ctx.fill(); ctx.stroke();
+      const name = `${t.name}${bad ? " ⚠" : ""}`, value = tapValue(r, byName.get(t.name));
+      ctx.save(); ctx.translate(sx, sy); ctx.fillStyle = bad ? C.vermillion : C.ink;
+      if (vertical) {
+        ctx.rotate(-Math.PI / 2); ctx.textAlign = top ? "left" : "right"; ctx.textBaseline = "middle";
+        ctx.font = "12px system-ui, sans-serif"; ctx.fillText(`${name} ${value}`, top ? 2 : -2, 0);
+      } else {  // the name next to the tap, the value beyond it
+        ctx.textAlign = "center"; ctx.textBaseline = top ? "bottom" : "top";
+        const step = top ? -17 : 17;
+        ctx.font = "bold 13px system-ui, sans-serif"; ctx.fillText(name, 0, 0);
+        ctx.font = "14px system-ui, sans-serif"; ctx.fillText(value, 0, step);
+      }
+      ctx.restore();
+    });
+  }
+  ctx.fillStyle = "#555"; ctx.font = "13px system-ui, sans-serif"; ctx.textAlign = "right"; ctx.textBaseline = "alphabetic";
+  ctx.fillText(`values in ${unit}; flow from left to right`, W - 6, H - 4);
+  ctx.textAlign = "left";
 }
 
 // ---- points and lift curve ----------------------------------------------------------------------------------
