@@ -11,12 +11,20 @@ value is a usage error (exit 2) naming the option, before any file or port is op
 
 from __future__ import annotations
 
-import argparse
-import importlib
-import math
 import os
-import pkgutil
-import sys
+
+# One BLAS thread, set before numpy loads: the live path's matrices are small (at most channels × channels), where
+# a second BLAS thread only adds synchronisation and fights the reader, writer and reduction threads for the
+# cores (seen: a 500 × 65 covariance 17 times slower with two threads on a busy two-core machine). A value the
+# user set is kept.
+for _name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_name, "1")
+
+import argparse  # noqa: E402
+import importlib  # noqa: E402
+import math  # noqa: E402
+import pkgutil  # noqa: E402
+import sys  # noqa: E402
 
 from taprig import __version__
 

@@ -34,6 +34,7 @@ from taprig.session.store import SessionWriter
 
 TREND_SECONDS = 300.0   # how far back the trend plot reaches
 TREND_RATE_HZ = 5.0     # trend samples per second kept for it
+DISPLAY_CPU_SHARE = 0.25  # the most of one core that display updates may take (their rate drops before that)
 
 
 class Frame:
@@ -138,22 +139,26 @@ class Display:
                 self.trend.append(row)
 
     def _view_loop(self) -> None:
-        last = 0.0
+        due = 0.0
         with self.source.hub.subscribe() as sub:
             while not self._closed.is_set():
                 state = sub.get(timeout=0.5)
                 self._sample_trend(state)
                 if self.frames.subscriber_count == 0:
                     continue
-                wait = last + self.min_interval - time.monotonic()
+                wait = due - time.monotonic()
                 if wait > 0 and self._closed.wait(wait):
                     break
                 state = sub.get(timeout=0) or state or self.source.hub.latest
+                start = time.monotonic()
                 try:
                     self.frames.publish(self.frame(state))
                 except Exception as exc:  # a display update must never end the run; say what went wrong
                     self.notify(f"display update failed: {exc}")
-                last = time.monotonic()
+                # at most max_rate_hz, and the updates' own work held to DISPLAY_CPU_SHARE of a core, so that a
+                # wide rig on a slow computer shows fewer updates rather than starving the acquisition
+                cost = time.monotonic() - start
+                due = start + max(self.min_interval, cost / DISPLAY_CPU_SHARE)
 
     def frame(self, state: LiveState | None) -> Frame:
         """The display update for ``state``: the mean of the newest window of scans, and :meth:`status`."""
