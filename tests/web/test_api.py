@@ -237,6 +237,7 @@ def test_a_venturi_bench_runs_its_fan_from_the_page(venturi):
     wait_device_time(venturi.acq, 3.0, 30)
     reading = [f for f in frames(venturi, 3) if f["reading"]][-1]["reading"]
     assert reading["state"] == "flow" and reading["venturi"]["mass_flow_kg_s"] > 0
+    assert 0 < reading["venturi"]["u_mass_flow_kg_s"] < 0.1 * reading["venturi"]["mass_flow_kg_s"]
     assert reading["flow"]["alpha_deg"] is None and reading["coefficients"] is None
     assert venturi.post("/api/live/stop").status_code == 200 and venturi.acq.setpoints[fan["name"]] == fan["safe"]
 

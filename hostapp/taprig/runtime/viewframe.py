@@ -39,6 +39,9 @@ def pair(value, u) -> list | None:
 _FLOW_STATES = (
     (ScanFlag.REFERENCE_INVALID, "reference invalid",
      "a channel that q or the freestream static depends on is saturated or not finite"),
+    (ScanFlag.BEYOND_RIG, "implausible", "a speed or Mach number beyond what this rig can make: check the "
+     "calibration and the sensors"),
+    (ScanFlag.REVERSED, "reversed", "q is negative beyond its noise: pitot lines swapped, or flow the wrong way"),
     (ScanFlag.NO_FLOW, "no flow", "q is below what the q sensor can tell from zero"),
 )
 
@@ -129,7 +132,7 @@ def reading(reducer, mean: ReducedMean, channel_flag_counts: dict, scan_index: t
             out["balance"] = {"lift_n": num(mean.lift_n), "cl": num(mean.cl_balance)}
         if mean.mass_flow_kg_s is not None:
             out["venturi"] = {"mass_flow_kg_s": num(mean.mass_flow_kg_s),
-                              "u_mass_flow_kg_s": num(getattr(mean, "u_mass_flow_kg_s", None)),
+                              "u_mass_flow_kg_s": num(mean.u_mass_flow_kg_s),
                               "volume_flow_m3_s": num(mean.mass_flow_kg_s / reducer.fluid.density)}
     return out
 
