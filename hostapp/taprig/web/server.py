@@ -34,7 +34,7 @@ class Dashboard:
 
     @property
     def port(self) -> int:
-        return self.server.server_port
+        return self.server.socket.getsockname()[1]
 
     def url(self, role: str = "control") -> str:
         """The link to open: with the control key, or the view-only key for ``role="view"``."""
@@ -77,10 +77,15 @@ def serve(sources: Sources, host: str = "127.0.0.1", port: int = DEFAULT_PORT, t
     server, last = None, None
     for candidate in range(port, port + max(tries, 1)) if port else (0,):
         try:
-            server = make_server(host, candidate, app, threaded=True)
-            break
+            sock = _listening_socket(host, candidate)
         except OSError as exc:
             last = exc
+            continue
+        try:  # werkzeug takes the socket bound here (its own bind would end the process on a port in use)
+            server = make_server(host, sock.getsockname()[1], app, threaded=True, fd=sock.fileno())
+        finally:
+            sock.close()  # the server holds its own duplicate
+        break
     if server is None:
         span = f"port {port}" if tries <= 1 else f"ports {port}…{port + tries - 1}"
         raise ServeError(f"cannot serve the dashboard on {host} {span}: "
@@ -90,6 +95,20 @@ def serve(sources: Sources, host: str = "127.0.0.1", port: int = DEFAULT_PORT, t
                               daemon=True)
     thread.start()
     return Dashboard(server, thread, keys, sources, host)
+
+
+def _listening_socket(host: str, port: int) -> socket.socket:
+    """A TCP socket bound to ``host``:``port`` and listening (OSError when the port is taken or not ours)."""
+    family = socket.AF_INET6 if ":" in host else socket.AF_INET
+    sock = socket.socket(family, socket.SOCK_STREAM)
+    try:
+        sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
+        sock.bind((host, port))
+        sock.listen(128)
+    except OSError:
+        sock.close()
+        raise
+    return sock
 
 
 def can_show_browser() -> bool:
