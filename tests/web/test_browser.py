@@ -150,7 +150,7 @@ def test_the_page_runs_the_rig_and_the_stop_reaches_the_board(browser, bench):
         page.page.click("#b-record")
         page.until("() => document.getElementById('st-rec').textContent === 'not recording'")
         page.page.keyboard.press("Escape")  # the stop key: every actuator to its safe value
-        page.until("() => document.getElementById('message').textContent.startsWith('STOP')")
+        page.until("() => /^stop/i.test(document.getElementById('message').textContent)")
         page.until("() => document.getElementById('st-flow').textContent === 'NO FLOW'", 180)  # the fan ran down
         assert "safe value" in page.text("#now-fan") and "safe value" in page.text("#now-alpha")
         page.page.click("#b-zero")
@@ -226,7 +226,7 @@ def test_a_sweep_from_the_page(browser, bench):
         assert rows[-3:] == ["0.00", "2.00", "4.00"]
         page.shot("sweep")
         page.page.click("#stop")
-        page.until("() => document.getElementById('message').textContent.startsWith('STOP')")
+        page.until("() => /^stop/i.test(document.getElementById('message').textContent)")
         assert page.errors == []
     finally:
         page.close()
