@@ -18,7 +18,7 @@ import zlib
 from pathlib import Path
 
 OUT = Path(__file__).with_name("vectors.json")
-FORMAT = 1
+FORMAT = 2
 COUNTERS = ("frames", "bytes", "framing_errors", "crc_errors", "oversize", "unknown_types", "gaps", "frames_lost",
             "scans_lost", "duplicates", "late", "resets", "undecodable")
 TYPE_NAMES = {0x01: "DESCRIPTION", 0x02: "SAMPLES", 0x03: "STATUS", 0x04: "REPLY", 0x05: "LOG", 0x81: "START",
@@ -157,14 +157,17 @@ def req_only(msg_type, req):
 class Case:
     """Bytes of one vector and the frames a decoder must deliver from them."""
 
-    def __init__(self, name: str, description_text: str):
+    def __init__(self, name: str, description_text: str, receiver: str | None = None):
         self.name, self.description = name, description_text
+        self.receiver = receiver  # None: from the types sent (§1: each end interprets the other end's types)
+        self.types: set[int] = set()
         self.stream = bytearray()
         self.frames: list[dict] = []
 
     def send(self, message, seq: int, flags: int = 0, delivered: bool = True, as_sent: bytes | None = None):
         """Append a well-formed frame; ``delivered`` False for one a decoder counts but does not deliver."""
         msg_type, body, fields = message
+        self.types.add(msg_type)
         canonical = wire(msg_type, seq, body, flags)
         self.stream += canonical if as_sent is None else as_sent
         if delivered:
@@ -182,7 +185,9 @@ class Case:
         assert not counters, f"{self.name}: unknown counters {counters}"
         assert counts["bytes"] == 0, "bytes is computed"
         counts["bytes"] = len(self.stream)
-        return {"name": self.name, "description": self.description, "hex": self.stream.hex(),
+        receiver = self.receiver or ("device" if self.types and min(self.types) > 0x80 else "host")
+        assert receiver == "device" or all(t < 0x80 for t in self.types), f"{self.name}: mixed directions"
+        return {"name": self.name, "description": self.description, "receiver": receiver, "hex": self.stream.hex(),
                 "frames": self.frames, "counters": counts}
 
 
@@ -333,7 +338,8 @@ def bad_cases() -> list[dict]:
                     "4114 bytes 0xFF (oversize), 9000 bytes 0x55 (oversize), then a STATUS")
     oversize.raw(b"\xff" * 4113 + b"\x00" + b"\xff" * 4114 + b"\x00" + b"\x55" * 9000 + b"\x00").send(st, 0)
 
-    unknown = Case("unknown_type", "well-formed frames of types 0x7E, 0xC0 and reserved 0x00, then a STATUS")
+    unknown = Case("unknown_type", "well-formed frames of types 0x7E, 0xC0 and reserved 0x00, then a STATUS",
+                   receiver="host")
     unknown.raw(wire(0x7E, 0, b"abc") + wire(0xC0, 1, b"") + wire(0x00, 2, b"\x01")).send(st, 3)
 
     boot_text = b"taprig-ref booting\r\nclock ok\r\n"  # 't' = 0x74 promises 115 bytes: invalid COBS
@@ -342,9 +348,13 @@ def bad_cases() -> list[dict]:
     garbage.raw(boot_text + b"\x00").send(DESC8, 0, BOOT).raw(b"\xff\x13\x37\x00").send(st, 1).raw(b"\x00" * 3)
 
     short = Case("body_too_short", "well-formed frames whose bodies are too short: STATUS of 10 bytes, SAMPLES of "
-                 "20 bytes, REPLY whose detail runs past the end, START of 13 bytes; all after a DESCRIPTION")
+                 "20 bytes, REPLY whose detail runs past the end, LOG without its level byte; all after a "
+                 "DESCRIPTION")
     short.send(DESC8, 0, BOOT).raw(wire(0x03, 1, st[1][:10]) + wire(0x02, 2, bytes(20)))
-    short.raw(wire(0x04, 3, b"\x01\x00\x00\x05abc") + wire(0x81, 4, bytes(13)))
+    short.raw(wire(0x04, 3, b"\x01\x00\x00\x05abc") + wire(0x05, 4, b""))
+    short_cmd = Case("command_body_too_short", "at a device: START of 13 bytes and HEARTBEAT with an empty body "
+                     "(both malformed), then a good STOP", receiver="device")
+    short_cmd.raw(wire(0x81, 0, bytes(13)) + wire(0x84, 1, b"")).send(req_only(0x82, 4), 2)
 
     samples_bad = Case("samples_malformed", "SAMPLES whose n_scans (3) disagrees with its data (2 scans), "
                        "one with n_scans 0, one with channel mask 0, then a good one")
@@ -366,9 +376,9 @@ def bad_cases() -> list[dict]:
     length.raw(cobs_encode(decoded_frame(0x03, 0, st[1], length=18)) + b"\x00")
     length.raw(cobs_encode(decoded_frame(0x03, 1, st[1], length=20)) + b"\x00").send(st, 2)
 
-    empty = Case("empty_body", "HEARTBEAT with an empty body (malformed), an unknown type with an empty body, "
+    empty = Case("empty_body", "REPLY with an empty body (malformed), an unknown type with an empty body, "
                  "a LOG with empty text (valid), an 11-byte decoded frame (too short)")
-    empty.raw(wire(0x84, 0, b"") + wire(0x70, 1, b"")).send(log(20, ""), 2)
+    empty.raw(wire(0x04, 0, b"") + wire(0x70, 1, b"")).send(log(20, ""), 2)
     empty.raw(cobs_encode(decoded_frame(0x05, 3, b"")[:11]) + b"\x00")
     return [
         bad_crc.done(frames=2, crc_errors=1, gaps=1, frames_lost=1),
@@ -377,10 +387,62 @@ def bad_cases() -> list[dict]:
         unknown.done(frames=4, unknown_types=3),
         garbage.done(frames=2, framing_errors=2, resets=1),
         short.done(frames=5, framing_errors=4, resets=1),
+        short_cmd.done(frames=3, framing_errors=2),
         samples_bad.done(frames=5, framing_errors=3, resets=1),
         undecodable.done(frames=4, undecodable=2),
         length.done(frames=1, framing_errors=2),
         empty.done(frames=3, framing_errors=2, unknown_types=1),
+    ]
+
+
+def decision_cases() -> list[dict]:
+    """One case per rule of PROTOCOL.md that an implementer could otherwise read two ways (its §8 lists them)."""
+    st = status()
+    # §3: SET_ACTUATOR's second field is `actuator_id` (the cases set_actuator and set_actuator_negative carry it).
+    # §5: a late SAMPLES block (first_scan behind the scan expected next) is delivered with its own indices and does
+    # not move the expectation; the scans it holds were already counted lost when the block after them came.
+    late = Case("samples_late", "SAMPLES of scans 0–3 (seq 1), 8–11 (seq 3: one frame and scans 4–7 missing), "
+                "then 4–7 arrive late (seq 2), then 12–15 (seq 4): nothing more is lost")
+    late.send(DESC8, 0, BOOT)
+    for seq, first in ((1, 0), (3, 8), (2, 4), (4, 12)):
+        data = [(first + k,) for k in range(4)]
+        late.send(samples(first * 1000, 1_000_000, first, 0b1000, data, first * 1_000_000, first), seq)
+    # §5: first_scan is unwrapped like seq: a block that reaches 2^32 continues at first_scan 0 (not a new START)
+    wrap = Case("scan_wrap", "SAMPLES first_scan 0xFFFFFFF8 and 0xFFFFFFFC (4 scans each), then 0: the index goes "
+                "on past 2^32 (4294967296) without a loss or a restart")
+    wrap.send(DESC8, 0, BOOT)
+    for i, (first, unwrapped) in enumerate(((0xFFFFFFF8, 0xFFFFFFF8), (0xFFFFFFFC, 0xFFFFFFFC), (0, 1 << 32))):
+        data = [(i * 4 + k,) for k in range(4)]
+        wrap.send(samples(i * 4000, 1_000_000, first, 0b1000, data, i * 4_000_000, unwrapped), 1 + i)
+    # §2: an encoding code the receiver does not know (9) leaves the description usable; only blocks that include
+    # that channel are undecodable
+    three = [("p_a", 2), ("future", 9), ("p_b", 1)]
+    desc3 = description(three, [])
+    unknown = Case("unknown_encoding", "DESCRIPTION whose channel 1 has encoding 9 (unknown), SAMPLES of channels "
+                   "0 and 2 (decoded), SAMPLES of channels 0–2 (undecodable), SAMPLES of channels 0 and 2 again")
+    unknown.send(desc3, 0, BOOT)
+    unknown.send(samples(0, 1_000_000, 0, 0b101, [(100, -100)], 0, 0, channels=three), 1)
+    unknown.raw(wire(0x02, 2, struct.pack("<IIIHHQ", 1000, 1_000_000, 1, 1, 0, 0b111) + struct.pack("<H", 7)
+                     + bytes(4) + struct.pack("<h", 7)))
+    unknown.send(samples(2000, 1_000_000, 2, 0b101, [(102, -102)], 2_000_000, 2, channels=three), 3)
+    # §1: a host → device type arriving at the host is counted as unknown, never interpreted; its seq counts
+    echo = Case("host_type_from_device", "at a host: STATUS seq 0, a well-formed HEARTBEAT seq 1 (a host type), "
+                "STATUS seq 2: the HEARTBEAT is an unknown type, not a gap", receiver="host")
+    echo.send(st, 0).raw(wire(0x84, 1, b"\x01\x00")).send(st, 2)
+    # §1: BOOT marks the first frame after a boot whatever its type (here a LOG before the DESCRIPTION); the
+    # receiver restarts its accounting there
+    boot = Case("boot_on_log", "DESCRIPTION (BOOT), SAMPLES 0–1 (seq 1), then the board reboots and says so first "
+                "in a LOG with BOOT (seq 0), then DESCRIPTION (seq 1, no BOOT) and SAMPLES from first_scan 0 at "
+                "t_us 900 (seq 2): one reset, no gap, no scans lost, time from 900 µs")
+    boot.send(DESC8, 0, BOOT).send(samples(7_000_000, 1_000_000, 0, 1, [(1,), (2,)], 7_000_000_000, 0), 1)
+    boot.send(log(30, "reset by brown-out"), 0, BOOT).send(DESC8, 1)
+    boot.send(samples(900, 1_000_000, 0, 1, [(3,), (4,)], 900_000, 0), 2)
+    return [
+        late.done(frames=5, resets=1, gaps=1, frames_lost=1, late=1, scans_lost=4),
+        wrap.done(frames=4, resets=1),
+        unknown.done(frames=4, resets=1, undecodable=1),
+        echo.done(frames=3, unknown_types=1),
+        boot.done(frames=5, resets=2),
     ]
 
 
@@ -436,7 +498,8 @@ def crc_starting_with_zero(seq: int) -> str:
 
 def build() -> dict:
     """Return the whole vectors document."""
-    cases = message_cases() + hand_assembled() + sample_cases() + sequence_cases() + bad_cases() + cobs_cases()
+    cases = (message_cases() + hand_assembled() + sample_cases() + sequence_cases() + bad_cases() + cobs_cases()
+             + decision_cases())
     names = [c["name"] for c in cases]
     assert len(names) == len(set(names)), "case names must be unique"
     return {"format": FORMAT, "protocol": "1.0", "counters": list(COUNTERS), "cases": cases}

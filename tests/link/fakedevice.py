@@ -86,7 +86,7 @@ class FakeDevice:
         self.behaviour = behaviour or Behaviour()
         self.received: list[Received] = []
         self.cond = threading.Condition()
-        self._decoder = StreamDecoder()
+        self._decoder = StreamDecoder(receiver="device")
         self._seq = self.behaviour.first_seq
         self._describes_ignored = 0
         self._streaming = False

@@ -37,7 +37,7 @@ class FakeSerial:
         self.reads = 0
         self._outbox = bytearray()
         self._cond = threading.Condition()
-        self._decoder = StreamDecoder()
+        self._decoder = StreamDecoder(receiver="device")
         self._seq = 0
         self.timeout = 0.02
         log.append(("open", name))

@@ -89,15 +89,26 @@ def sample_streams(draw):
 
 @given(plain_messages, u32, u8)
 def test_every_plain_message_round_trips(msg, seq, flags):
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver="any")
     assert decoder.feed(encode_message(msg, seq, flags)) == [msg]
     assert decoder.counters.frames == 1
+
+
+@given(plain_messages, u32)
+def test_each_end_interprets_only_the_other_ends_types(msg, seq):
+    # PROTOCOL.md §1: a frame of a receiver's own direction is skipped and counted as an unknown type
+    command = isinstance(msg, (Start, Stop, SetActuator, Heartbeat, Describe, Reset))
+    wire = encode_message(msg, seq)
+    for receiver, interprets in (("host", not command), ("device", command)):
+        decoder = StreamDecoder(receiver=receiver)
+        assert decoder.feed(wire) == ([msg] if interprets else [])
+        assert (decoder.counters.frames, decoder.counters.unknown_types) == (1, 0 if interprets else 1)
 
 
 @given(sample_streams(), u32)
 def test_samples_round_trip(stream, seq):
     description, blocks = stream
-    decoder = StreamDecoder(description)
+    decoder = StreamDecoder(description, receiver="any")
     for i, (msg, encodings) in enumerate(blocks):
         (block,) = decoder.feed(encode_message(msg, (seq + i) % 2**32, encodings=encodings))
         assert block.channels == mask_to_channels(msg.channel_mask)
@@ -151,9 +162,9 @@ def mixed_wire(draw):
 
 @given(mixed_wire(), st.lists(st.integers(0, 10**6), max_size=12))
 def test_split_anywhere_gives_the_same_items_and_counters(wire, cuts):
-    whole = StreamDecoder()
+    whole = StreamDecoder(receiver="any")
     expected = _normalised(whole.feed(wire))
-    pieced = StreamDecoder()
+    pieced = StreamDecoder(receiver="any")
     got = []
     bounds = sorted({c % (len(wire) + 1) for c in cuts} | {0, len(wire)})
     for lo, hi in zip(bounds, bounds[1:]):
@@ -165,7 +176,7 @@ def test_split_anywhere_gives_the_same_items_and_counters(wire, cuts):
 
 @given(st.lists(st.binary(max_size=600), max_size=8))
 def test_random_bytes_never_raise(chunks):
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver="any")
     for chunk in chunks:
         decoder.feed(chunk)
     assert decoder.counters.bytes == sum(map(len, chunks))
@@ -174,7 +185,7 @@ def test_random_bytes_never_raise(chunks):
 @given(st.sampled_from(MsgType), st.binary(max_size=200), u32, descriptions)
 def test_well_formed_frames_with_random_bodies_never_raise(msg_type, body, seq, description):
     # CRC-valid frames reach the body decoders, which random bytes alone almost never do
-    decoder = StreamDecoder(description)
+    decoder = StreamDecoder(description, receiver="any")
     items = decoder.feed(encode_frame(msg_type, seq, body))
     counters = decoder.counters
     assert counters.frames == 1

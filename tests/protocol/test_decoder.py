@@ -80,7 +80,7 @@ def test_a_new_description_changes_the_encodings_of_a_mask():
 
 
 def test_samples_need_a_description_and_known_channels():
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver="any")
     assert decoder.feed(_samples(0, 0)) == []
     assert decoder.counters.undecodable == 1
     decoder = StreamDecoder(DESC)
@@ -89,7 +89,7 @@ def test_samples_need_a_description_and_known_channels():
 
 
 def test_duplicate_is_dropped_and_late_is_delivered():
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver="any")
     seqs = [10, 11, 11, 9, 9, 12]
     items = decoder.feed(b"".join(encode_message(Heartbeat(s), s) for s in seqs))
     assert [i.req for i in items] == [10, 11, 9, 12]
@@ -99,7 +99,7 @@ def test_duplicate_is_dropped_and_late_is_delivered():
 
 
 def test_a_jump_of_half_the_range_is_a_gap_and_beyond_it_is_late():
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver="any")
     decoder.feed(encode_message(Heartbeat(0), 0) + encode_message(Heartbeat(0), 2**31 + 1))
     assert (decoder.counters.gaps, decoder.counters.frames_lost) == (1, 2**31)
     decoder.feed(encode_message(Heartbeat(0), 5))  # expected 2**31 + 2: 5 is behind it by 2**31 - 3
@@ -145,7 +145,7 @@ def test_scan_index_unwraps_and_counts_losses():
 
 
 def test_oversize_run_across_feeds_counts_once_and_keeps_no_backlog():
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver="any")
     for _ in range(300):
         decoder.feed(b"\x55" * 1000)
     assert decoder.counters.oversize == 1 and not decoder._carry
@@ -155,12 +155,12 @@ def test_oversize_run_across_feeds_counts_once_and_keeps_no_backlog():
 
 def test_feed_accepts_bytearray_and_memoryview():
     wire = encode_message(Log(20, "hi"), 0)
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver="any")
     assert decoder.feed(bytearray(wire[:5])) + decoder.feed(memoryview(wire)[5:]) == [Log(20, "hi")]
 
 
 def test_counters_are_a_snapshot():
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver="any")
     snapshot = decoder.counters
     decoder.feed(encode_message(Heartbeat(1), 0))
     assert snapshot.frames == 0 and decoder.counters.frames == 1
@@ -171,20 +171,25 @@ def test_counters_are_a_snapshot():
 
 @pytest.mark.parametrize("msg_type,body", [
     (0x01, bytes([1, 0, 0, 0]) + bytes(13) + bytes([65])),  # 65 channels > 64
-    (0x01, bytes([1, 0, 0, 0]) + bytes(12) + bytes([1, 9, 0, 0])),  # encoding 9 unknown
     (0x01, bytes([1, 0, 2, 0xC3, 0x28, 0]) + bytes(13) + bytes([0])),  # firmware is not UTF-8
     (0x03, bytes(16) + bytes([7])),  # state 7 unknown
     (0x04, bytes([1, 0, 9, 0])),  # reply code 9 unknown
 ])
 def test_bad_field_values_are_framing_errors(msg_type, body):
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver="any")
     assert decoder.feed(encode_frame(msg_type, 0, body)) == []
     assert decoder.counters.framing_errors == 1 and decoder.counters.frames == 1
 
 
+def test_an_unknown_encoding_is_kept_as_its_code():
+    # PROTOCOL.md §2 (vector unknown_encoding): the description stays usable, that channel alone cannot be decoded
+    (desc,) = StreamDecoder().feed(encode_frame(0x01, 0, bytes([1, 0, 0, 0]) + bytes(12) + bytes([1, 9, 0, 0])))
+    assert desc.channels[0].encoding == 9 and not isinstance(desc.channels[0].encoding, Encoding)
+
+
 def test_text_for_people_tolerates_bad_utf8_and_bodies_may_grow():
     wire = encode_frame(0x04, 0, bytes([5, 0, 0, 2, 0xC3, 0x28]) + b"future field")
-    assert StreamDecoder().feed(wire) == [Reply(5, ReplyCode.OK, "\ufffd(")]
+    assert StreamDecoder(receiver="any").feed(wire) == [Reply(5, ReplyCode.OK, "\ufffd(")]
 
 
 @pytest.mark.parametrize("make", [

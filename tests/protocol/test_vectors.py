@@ -64,7 +64,7 @@ def _message(frame: dict, description: dict | None):
         return Description(**{**fields, "channels": tuple(ChannelInfo(**c) for c in fields["channels"]),
                               "actuators": tuple(ActuatorInfo(**a) for a in fields["actuators"])})
     if frame["type"] == "SAMPLES":
-        encodings = [Encoding(description["channels"][i]["encoding"]) for i in fields["channels"]]
+        encodings = [Encoding(description["channels"][i]["encoding"]) for i in fields["channels"]]  # known ones
         msg = Samples(fields["t_us"], fields["period_ns"], fields["first_scan"], fields["channel_mask"],
                       np.array(fields["data"], dtype=np.float64))
         return msg, encodings
@@ -90,7 +90,7 @@ def test_vectors_cover_the_required_cases():
 @pytest.mark.parametrize("name", CASES)
 def test_frame_by_frame(name):
     case = CASES[name]
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver=case["receiver"])
     delivered = []
     for piece in _pieces(case):
         items = decoder.feed(piece)
@@ -108,7 +108,7 @@ def test_frame_by_frame(name):
 @pytest.mark.parametrize("name", CASES)
 def test_whole_input_at_once(name):
     case = CASES[name]
-    decoder = StreamDecoder()
+    decoder = StreamDecoder(receiver=case["receiver"])
     items = decoder.feed(bytes.fromhex(case["hex"]))
     assert decoder.counters.as_dict() == case["counters"]
     expected = iter(case["frames"])

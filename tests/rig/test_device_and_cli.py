@@ -229,3 +229,11 @@ def test_calibrate_from_a_binary_file_says_so(tmp_path: Path, capsys) -> None:
     assert _calibrate(src, "-o", str(tmp_path / "c.toml")) == 1
     err = capsys.readouterr().err
     assert "is not a text TOML or CSV calibration input" in err and "codec" not in err
+
+
+def test_an_encoding_this_host_does_not_know_is_named_as_such() -> None:
+    # PROTOCOL.md §2: the description is kept with the code; the difference says what it is
+    d = _description()
+    unknown = replace(d, channels=d.channels[:1] + (ChannelInfo("u1", 9),) + d.channels[2:])
+    assert RIG.differences(unknown) == ["channel 'u1' (index 1): the rig expects u16, the device sends unknown "
+                                        "encoding 9 (device name 'u1')"]

@@ -136,14 +136,17 @@ def _replies_to(stream):
 
 
 def test_short_command_bodies_in_the_vectors_get_malformed():
-    # body_too_short ends with a START of 13 zero bytes (needs 16): MALFORMED, req read as 0
-    assert _replies_to(bytes.fromhex(by_name("body_too_short")["hex"]))[-1] == (0, fw_wire.MALFORMED)
+    # command_body_too_short: a START of 13 zero bytes (needs 16) and an empty HEARTBEAT: MALFORMED with req 0
+    # (under two bytes, or zeros), then the STOP (req 4) is answered OK
+    replies = _replies_to(bytes.fromhex(by_name("command_body_too_short")["hex"]))
+    assert replies == [(0, fw_wire.MALFORMED), (0, fw_wire.MALFORMED), (4, fw_wire.OK)]
 
 
-def test_empty_and_unknown_bodies_in_the_vectors():
-    # empty_body: HEARTBEAT with no body (MALFORMED, req 0); type 0x70 and a LOG are device → host types, which a
-    # device takes for an echo and skips (fw_device.Device); the 11-byte frame is not well formed and gets nothing.
-    assert _replies_to(bytes.fromhex(by_name("empty_body")["hex"])) == [(0, fw_wire.MALFORMED)]
+def test_device_to_host_types_in_the_vectors_are_skipped():
+    # PROTOCOL.md §1: a device does not act on a device → host type. empty_body (an empty REPLY, type 0x70, a LOG,
+    # an 11-byte frame) and body_too_short (all device → host types) get no reply at all.
+    assert _replies_to(bytes.fromhex(by_name("empty_body")["hex"])) == []
+    assert _replies_to(bytes.fromhex(by_name("body_too_short")["hex"])) == []
     # unknown_type: 0x7E (device range) skipped, 0xC0 and the reserved 0x00 get UNKNOWN_COMMAND with req 0
     assert _replies_to(bytes.fromhex(by_name("unknown_type")["hex"])) == [(0, fw_wire.UNKNOWN_COMMAND)] * 2
 

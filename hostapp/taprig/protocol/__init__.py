@@ -36,6 +36,7 @@ from taprig.protocol.messages import (
     Start,
     Status,
     Stop,
+    encoding_name,
 )
 from taprig.protocol.samples import RawBlock, channels_to_mask, mask_to_channels
 
@@ -70,5 +71,6 @@ __all__ = [
     "decode_frame",
     "encode_frame",
     "encode_message",
+    "encoding_name",
     "mask_to_channels",
 ]

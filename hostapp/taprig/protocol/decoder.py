@@ -21,6 +21,8 @@ _MASK32 = _U32 - 1
 _SAMPLES = int(MsgType.SAMPLES)
 _SAMPLES_DATA = HEADER_SIZE + SAMPLES_HEAD.size
 _NOT_CACHED = object()
+#: which frame types each kind of receiver interprets (PROTOCOL.md §1: a frame of the other direction is unknown)
+_RECEIVERS = {"host": lambda t: 0 < t < 0x80, "device": lambda t: t > 0x80, "any": lambda t: True}
 _LAYOUT_CACHE_LIMIT = 256
 
 
@@ -50,14 +52,21 @@ class Counters:
 class StreamDecoder:
     """Decode a byte stream of frames, in either direction.
 
-    ``feed`` returns, in arrival order, the message dataclasses of :mod:`taprig.protocol.messages` (host → device
-    types included, so a device can decode its commands with it) and :class:`RawBlock` for ``SAMPLES``;
-    consecutive ``SAMPLES`` frames of one channel set within one call come out merged as one block. A frame that
-    repeats the previous ``seq`` is counted as a duplicate and not delivered; a late frame is counted and delivered.
-    ``description`` is the latest ``DESCRIPTION`` seen, or the one given; ``SAMPLES`` need one to be decoded.
+    ``feed`` returns, in arrival order, the message dataclasses of :mod:`taprig.protocol.messages` and
+    :class:`RawBlock` for ``SAMPLES``; consecutive ``SAMPLES`` frames of one channel set within one call come out
+    merged as one block. A frame that repeats the previous ``seq`` is counted as a duplicate and not delivered; a
+    late frame is counted and delivered. ``description`` is the latest ``DESCRIPTION`` seen, or the one given;
+    ``SAMPLES`` need one to be decoded.
+
+    ``receiver`` says which end decodes (PROTOCOL.md §1): ``"host"`` (the default) interprets only device → host
+    types and counts a well-formed host → device frame as an unknown type; ``"device"`` the converse (a board's
+    command reader, the simulator); ``"any"`` interprets both (a capture of both directions, tests).
     """
 
-    def __init__(self, description: Description | None = None):
+    def __init__(self, description: Description | None = None, receiver: str = "host"):
+        if receiver not in _RECEIVERS:
+            raise ValueError(f"receiver must be one of {', '.join(_RECEIVERS)}, not {receiver!r}")
+        self._accepts = _RECEIVERS[receiver]
         self._counters = Counters()
         self._description = description
         self._layouts: dict[int, SampleLayout | None] = {}
@@ -118,10 +127,10 @@ class StreamDecoder:
         counters.frames += 1
         if not self._sequence(seq, flags):
             return
-        if msg_type == _SAMPLES:
+        if msg_type == _SAMPLES and self._accepts(msg_type):
             self._samples(raw, items)
             return
-        parse = BODY_DECODERS.get(msg_type)
+        parse = BODY_DECODERS.get(msg_type) if self._accepts(msg_type) else None
         if parse is None:
             counters.unknown_types += 1
             return
@@ -168,14 +177,14 @@ class StreamDecoder:
         if mask == 0:
             counters.framing_errors += 1
             return
-        if self._description is None:
-            counters.undecodable += 1
-            return
-        layout = self._layouts.get(mask, _NOT_CACHED)
+        layout = None if self._description is None else self._layouts.get(mask, _NOT_CACHED)
         if layout is _NOT_CACHED:
             layout = self._cache_layout(mask)
         if layout is None:
+            # §5: the header is readable, so the scans move the expectation (counted here, not as lost)
             counters.undecodable += 1
+            if n_scans:
+                self._scan_start(first_scan, n_scans)
             return
         if n_scans == 0 or len(raw) != _SAMPLES_DATA + CRC_SIZE + n_scans * layout.scan_bytes:
             counters.framing_errors += 1

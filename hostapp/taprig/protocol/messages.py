@@ -74,10 +74,14 @@ class MalformedBody(ValueError):
 
 @dataclass(frozen=True)
 class ChannelInfo:
-    """One channel of the self-description; its index is its position in ``Description.channels``."""
+    """One channel of the self-description; its index is its position in ``Description.channels``.
+
+    ``encoding`` is an :class:`Encoding`, or the plain ``int`` code of one this host does not know (PROTOCOL.md §2:
+    the channel cannot be decoded, the others can).
+    """
 
     name: str
-    encoding: Encoding
+    encoding: Encoding | int
 
 
 @dataclass(frozen=True)
@@ -262,7 +266,10 @@ def _encode_description(msg: Description) -> bytes:
               len(msg.channels)),
     ]
     for i, ch in enumerate(msg.channels):
-        parts += [bytes((Encoding(ch.encoding),)), _str8(ch.name, f"Description.channels[{i}].name")]
+        code = int(ch.encoding)
+        if not 0 < code < 256:
+            raise ValueError(f"Description.channels[{i}].encoding: {code} is not a u8 encoding code (1–255)")
+        parts += [bytes((code,)), _str8(ch.name, f"Description.channels[{i}].name")]
     parts.append(bytes((len(msg.actuators),)))
     for i, act in enumerate(msg.actuators):
         parts += [
@@ -339,6 +346,28 @@ def _enum(kind: type[IntEnum], code: int) -> IntEnum:
         raise MalformedBody(f"{code} is not a {kind.__name__}") from None
 
 
+def channel_encoding(code: int) -> Encoding | int:
+    """The :class:`Encoding` of a code, or the code itself when this host does not know it (PROTOCOL.md §2).
+
+    >>> channel_encoding(2), channel_encoding(9)
+    (<Encoding.U16: 2>, 9)
+    """
+    try:
+        return Encoding(code)
+    except ValueError:
+        return int(code)
+
+
+def encoding_name(encoding: Encoding | int) -> str:
+    """``u16`` for a known encoding, ``unknown encoding 9`` for a code this host does not know."""
+    return encoding.name.lower() if isinstance(encoding, Encoding) else f"unknown encoding {int(encoding)}"
+
+
+def is_device_to_host(msg_type: int) -> bool:
+    """True for a type of the device → host range ``0x01–0x7F`` (PROTOCOL.md §1)."""
+    return 0 < msg_type < 0x80
+
+
 def _decode_description(body: bytes) -> Description:
     r = _Reader(body)
     major, minor = r.u8(), r.u8()
@@ -346,7 +375,7 @@ def _decode_description(body: bytes) -> Description:
     rate_min, rate_max, max_frame, heartbeat_ms, n_channels = r.unpack(_RATES)
     if n_channels > MAX_CHANNELS:
         raise MalformedBody(f"n_channels {n_channels} > {MAX_CHANNELS}")
-    channels = tuple(ChannelInfo(encoding=_enum(Encoding, r.u8()), name=r.str8()) for _ in range(n_channels))
+    channels = tuple(ChannelInfo(encoding=channel_encoding(r.u8()), name=r.str8()) for _ in range(n_channels))
     n_actuators = r.u8()
     if n_actuators > MAX_ACTUATORS:
         raise MalformedBody(f"n_actuators {n_actuators} > {MAX_ACTUATORS}")

@@ -110,11 +110,15 @@ def make_layout(channels: Sequence[int], encodings: Sequence[Encoding]) -> Sampl
 
 
 def layout_for_mask(description: Description, mask: int) -> SampleLayout | None:
-    """Return the layout of ``mask`` under ``description``; ``None`` when the mask names a channel it lacks."""
+    """Return the layout of ``mask`` under ``description``; ``None`` when the mask names a channel it lacks or a
+    channel whose encoding this host does not know (PROTOCOL.md §2)."""
     channels = mask_to_channels(mask)
     if not channels or channels[-1] >= len(description.channels):
         return None
-    return make_layout(channels, [description.channels[i].encoding for i in channels])
+    encodings = [description.channels[i].encoding for i in channels]
+    if not all(isinstance(e, Encoding) for e in encodings):
+        return None
+    return make_layout(channels, encodings)
 
 
 def _wire_column(values: np.ndarray, encoding: Encoding, channel: int) -> np.ndarray:

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from taprig.protocol import ActuatorKind, Description
+from taprig.protocol import ActuatorKind, Description, encoding_name
 from taprig.rig.errors import RigIssue
 from taprig.rig.model import Actuator, Measures, Medium, Rig, RigKind, Surface
 from taprig.rig.sensors import Quantity
@@ -359,7 +359,7 @@ def _channel_differences(rig: Rig, description: Description) -> list[str]:
         if sent != ch.encoding:
             out.append(
                 f"channel {ch.name!r} (index {ch.index}): the rig expects {ch.encoding.name.lower()}, "
-                f"the device sends {getattr(sent, 'name', str(sent)).lower()} "
+                f"the device sends {encoding_name(sent)} "
                 f"(device name {description.channels[ch.index].name!r})"
             )
     return out

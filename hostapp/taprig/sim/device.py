@@ -204,7 +204,7 @@ class SimulatedDevice:
         """Power-up or reboot: sequence 0, actuators to safe, not streaming, DESCRIPTION with BOOT."""
         self._boot_ns = self._now
         self._seq = 0
-        self._decoder = StreamDecoder()
+        self._decoder = StreamDecoder(receiver="device")
         self._plan: StreamPlan | None = None
         self._safe = False
         self._watchdog_ns = _NEVER
