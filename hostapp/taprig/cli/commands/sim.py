@@ -76,8 +76,11 @@ def run(args) -> int:
         rig = load_rig(args.rig)
     except (RigError, OSError) as exc:
         raise UserError(str(exc)) from None
+    from taprig.sim import registry
+
     device = SimulatedDevice(rig, options)
     bridge = PtyBridge(device, options.speed)
+    entry = registry.announce(bridge.path, rig.id, args.rig)  # so that `taprig ports` lists it
     print(bridge.path, flush=True)
     print(f"taprig sim: rig {rig.id!r} on {bridge.path} (Ctrl-C to stop)", file=sys.stderr, flush=True)
     previous = signal.signal(signal.SIGTERM, bridge.stop)
@@ -85,6 +88,7 @@ def run(args) -> int:
         bridge.serve(args.seconds)
     finally:
         signal.signal(signal.SIGTERM, previous)
+        registry.withdraw(entry)
         bridge.close()
     print(f"taprig sim: {bridge.summary()}", file=sys.stderr)
     return 0
