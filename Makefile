@@ -12,7 +12,7 @@ PYTEST_ARGS ?=
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
-	$(BIN)/python -m pip install --quiet -e '.[test]'
+	$(BIN)/python -m pip install --quiet -e '.[test,bench]'
 	touch $(STAMP)
 
 setup: $(STAMP)

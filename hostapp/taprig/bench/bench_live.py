@@ -130,7 +130,12 @@ def _live_cpu(quick: bool) -> list[Record]:
 
 
 def _rss_mb() -> float:
-    import psutil
+    try:
+        import psutil  # optional: the extra "bench" (and "test", for the soak tests)
+    except ImportError:
+        from taprig.cli import UserError
+
+        raise UserError("the live benchmark's memory figure needs psutil: pip install 'taprig[bench]'") from None
 
     return psutil.Process().memory_info().rss / 2**20
 
