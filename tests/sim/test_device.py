@@ -215,10 +215,14 @@ def test_short_command_body_gets_malformed(host):
     assert [(r.req, r.code) for r in h.step(0.01) if hasattr(r, "code")] == [(0, ReplyCode.MALFORMED)]
 
 
-def test_a_device_message_sent_to_the_board_is_an_unknown_command(host):
+def test_an_echoed_device_frame_gets_no_reply_and_does_not_feed_the_watchdog(host):
+    # PROTOCOL.md §1 and §4: a device → host type at the board is an echo; an unknown host type still gets one
     h = host("cylinder")
+    fed = h.device.host_frames
     samples = Samples(0, 1_000_000, 0, 1, np.zeros((2, 1)))
     h.device.receive(encode_message(samples, 0, 0, [h.device.description.channels[0].encoding]))
-    h.device.receive(encode_message(Status(0, 0, 0, 0, 0, DeviceState.IDLE), 1))
-    codes = [(r.req, r.code) for r in h.step(0.01) if hasattr(r, "code")]
-    assert codes == [(0, ReplyCode.UNKNOWN_COMMAND)] * 2
+    h.device.receive(encode_message(Status(5000, 2000, 1, 0, 0, DeviceState.IDLE), 1))
+    assert [r for r in h.step(0.01) if hasattr(r, "code")] == [] and h.device.host_frames == fed
+    h.device.receive(encode_frame(0xC0, 2, b""))  # a host → device type it does not know
+    assert [(r.req, r.code) for r in h.step(0.01) if hasattr(r, "code")] == [(0, ReplyCode.UNKNOWN_COMMAND)]
+    assert h.device.host_frames == fed + 1

@@ -67,6 +67,8 @@ class StreamDecoder:
         if receiver not in _RECEIVERS:
             raise ValueError(f"receiver must be one of {', '.join(_RECEIVERS)}, not {receiver!r}")
         self._accepts = _RECEIVERS[receiver]
+        #: well-formed frames of the receiver's own direction skipped so far (also counted in ``unknown_types``)
+        self.foreign_frames = 0
         self._counters = Counters()
         self._description = description
         self._layouts: dict[int, SampleLayout | None] = {}
@@ -130,6 +132,8 @@ class StreamDecoder:
         if msg_type == _SAMPLES and self._accepts(msg_type):
             self._samples(raw, items)
             return
+        if not self._accepts(msg_type):
+            self.foreign_frames += 1
         parse = BODY_DECODERS.get(msg_type) if self._accepts(msg_type) else None
         if parse is None:
             counters.unknown_types += 1

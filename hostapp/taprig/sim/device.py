@@ -171,16 +171,19 @@ class SimulatedDevice:
         """Take host bytes at the current simulated time and act on every complete command in them."""
         if self.disconnected or not data:
             return
-        before = self._decoder.counters
-        items = self._decoder.feed(data)  # no description: a SAMPLES frame sent to the board is undecodable
+        before, foreign_before = self._decoder.counters, self._decoder.foreign_frames
+        items = self._decoder.feed(data)
         after = self._decoder.counters
-        well_formed = after.frames - before.frames
+        # PROTOCOL.md §1, §4: a device → host type arriving here is an echo, not the host: no reply, and it does
+        # not feed the watchdog
+        foreign = self._decoder.foreign_frames - foreign_before
+        well_formed = after.frames - before.frames - foreign
         if well_formed:
             self.host_frames += well_formed
             self._watchdog_ns = self._now + self._timeout_ns()
         for item in items:
             self._command(item)
-        unknown = after.unknown_types - before.unknown_types + after.undecodable - before.undecodable
+        unknown = after.unknown_types - before.unknown_types - foreign
         malformed = well_formed - len(items) - unknown - (after.duplicates - before.duplicates)
         for _ in range(unknown):
             self._reply(0, ReplyCode.UNKNOWN_COMMAND, "unknown command type")
