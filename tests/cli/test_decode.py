@@ -170,3 +170,13 @@ def test_a_file_with_frames_prints_no_warning(capsys, tmp_path):
     (tmp_path / "capture.bin").write_bytes(bytes.fromhex(CASES["samples_mixed"]["hex"]))
     code, lines, err = decode(capsys, tmp_path / "capture.bin")
     assert code == 0 and lines[-1]["counters"]["frames"] > 0 and err == ""
+
+
+def test_a_capture_of_commands_decodes_as_the_board_does(capsys, tmp_path):
+    # PROTOCOL.md §1: a host decoder counts host → device types as unknown; --commands decodes them
+    (tmp_path / "sent.hex").write_text(CASES["set_actuator"]["hex"])
+    code, lines, _ = decode(capsys, tmp_path / "sent.hex")
+    assert code == 0 and lines[-1]["counters"]["unknown_types"] == 1
+    code, lines, _ = decode(capsys, tmp_path / "sent.hex", "--commands")
+    assert code == 0 and lines[-1] == {"counters": CASES["set_actuator"]["counters"]}
+    assert lines[0]["type"] == "SET_ACTUATOR"

@@ -36,6 +36,9 @@ def register(sub) -> None:
     p.add_argument("--format", choices=("auto", "raw", "hex", "vectors"), default="auto",
                    help="how to read FILE (default: guess from its content)")
     p.add_argument("--case", help="with a vector file: decode only the case of this name")
+    p.add_argument("--commands", action="store_true",
+                   help="FILE holds what a host sent (decode as the board does: host → device types); a vector "
+                        "file's cases say this themselves")
     p.add_argument("--seconds", type=finite_nonnegative, default=5.0, metavar="S", help="how long to read a port (default 5)")
     p.add_argument("--no-handshake", action="store_true", help="port: only listen (send nothing, not even DESCRIBE)")
     p.add_argument("--start", type=scan_rate, metavar="RATE", help="port: start streaming all channels at RATE [Hz]")
@@ -170,7 +173,7 @@ def _decode_bytes(data: bytes, decoder, extra: dict | None = None) -> None:
             _emit({**(extra or {}), **item_record(item)})
 
 
-def _decode_file(path: Path, fmt: str, only_case: str | None) -> dict:
+def _decode_file(path: Path, fmt: str, only_case: str | None, receiver: str = "host") -> dict:
     from taprig.protocol import StreamDecoder
     from taprig.session.store import SQLITE_HEADER
 
@@ -184,7 +187,7 @@ def _decode_file(path: Path, fmt: str, only_case: str | None) -> dict:
     if fmt != "vectors":
         if only_case is not None:
             raise UserError("--case applies to golden-vector files only")
-        decoder = StreamDecoder()
+        decoder = StreamDecoder(receiver=receiver)
         _decode_bytes(_hex_bytes(path, data) if fmt == "hex" else data, decoder)
         counters = decoder.counters.as_dict()
         if counters["frames"] == 0:
@@ -193,7 +196,8 @@ def _decode_file(path: Path, fmt: str, only_case: str | None) -> dict:
     totals: dict[str, int] = {}
     for case in _vector_cases(path, data, only_case):
         name = case.get("name", "")
-        decoder = StreamDecoder()
+        # PROTOCOL.md §1: each case names the end that decodes it (host, or device for commands)
+        decoder = StreamDecoder(receiver="device" if case.get("receiver") == "device" else "host")
         _decode_bytes(_hex_bytes(path, case["hex"].encode("ascii", errors="replace")), decoder, {"case": name})
         got = decoder.counters.as_dict()
         record = {"case": name, "case_counters": got}
@@ -275,7 +279,9 @@ def run(args) -> int:
     kind = _classify(args.source)
     if kind == "directory":
         raise UserError(f"{args.source} is a directory; expected a capture file, a port or a URL")
-    counters = _decode_file(Path(args.source), args.format, args.case) if kind == "file" else _decode_port(args)
+    receiver = "device" if args.commands else "host"
+    counters = (_decode_file(Path(args.source), args.format, args.case, receiver) if kind == "file"
+                else _decode_port(args))
     _emit({"counters": counters})
     sys.stdout.flush()
     return 0
