@@ -151,6 +151,8 @@ def test_two_channels_on_one_index_are_marked() -> None:
 def test_readings_off_the_drawing_are_named() -> None:
     ports = rig_picture(load_rig(RIGS / "cambered-balance.toml")).ports
     assert "balance lift: lift ch10" in [p.label for p in ports]
+    # issue 10's stated static source, where no channel is the static port
+    assert "freestream static = room − 1.1 q (u 0.03 q; suction tunnel, no static port)" in [p.label for p in ports]
     assert "room (barometer): baro ch22" in [p.label for p in rig_picture(load_rig(RIGS / "naca0012-20tap.toml")).ports]
 
 

@@ -235,7 +235,8 @@ def _text_lines(picture: RigPicture) -> list[tuple[str, str]]:
         out.append(("nothing suspicious found: every tap on its surface, one tap per channel, every channel used", INK))
     off = [p.label for p in picture.ports if p.x is None]
     if off:
-        out.append(("also read: " + "; ".join(off), "#1f6fb2"))
+        out.append(("besides the taps:", "#1f6fb2"))
+        out += [(f"  • {label}", "#1f6fb2") for label in off]
     legend = "labels: tap name and device channel (chN = its index in the board's description)"
     if picture.pivot is not None:
         legend += "; ⊕ the pivot"

@@ -55,7 +55,7 @@ class TapMark:
 class Port:
     """A reference pressure port or reading: its role, the channels on it and where it is drawn [m]."""
 
-    role: str  # "total", "static", "pitot" (a total − static differential), "room", "inlet", "balance"
+    role: str  # "total", "static", "pitot" (a total − static differential), "room", "inlet", "balance", "static_source"
     label: str  # e.g. "total port: p_total ch1"
     channels: tuple[str, ...]
     indices: tuple[int, ...]
@@ -321,6 +321,13 @@ def _ports(rig: Rig, probe: Point | None, taps: dict[str, TapMark]) -> list[Port
     port("room", "room (barometer)", room, None)
     if gauge and not room:
         out.append(Port("room", f"room: {len(gauge)} gauge channel(s) read against it", (), (), None, None))
+    stated = ref.static_offset()
+    if stated is not None and ref.static is None:
+        f, u = stated
+        how = {"suction": "suction tunnel", "factor": "empty-tunnel factor", "room": "open jet"}.get(
+            getattr(ref.static_source, "value", ""), "stated")
+        out.append(Port("static_source", f"freestream static = room − {f:.3g} q (u {u:.2g} q; {how}, no static port)",
+                        (), (), None, None))
     if rig.balance is not None:
         port("balance", "balance lift", [rig.balance.lift], None)
         port("balance", "balance drag", [rig.balance.drag], None)
