@@ -112,12 +112,18 @@ def test_unplug_mid_run_is_a_recorded_gap_and_the_run_goes_on(tmp_path):
     acq.link.backoff_initial_s = 0.05
     acq.open(200)
     try:
-        wait_device_time(acq, 2.5, timeout_s=20)  # device time runs on after the reconnect (a new boot)
+        # A lost link halts every automated step, with the cause; the recording goes on through the reconnect.
+        with pytest.raises(AcquisitionError, match="link to the board .* was lost"):
+            wait_device_time(acq, 2.5, timeout_s=20)
+        acq.clear_halt()  # the operator resumes
+        wait_device_time(acq, 0.3, timeout_s=20)  # device time runs on after the reconnect (a new boot)
     finally:
         acq.close()
     with SessionReader(tmp_path / "run.taprig") as r:
         kinds = [e.kind for e in r.link_events()]
+        events = [e.kind for e in r.events()]
     assert "lost" in kinds and "restored" in kinds and kinds.index("lost") < kinds.index("restored")
+    assert events.index("halt") < events.index("halt_cleared") < events.index("shutdown")
 
 
 def test_replay_of_a_live_run_is_bit_identical(tmp_path):

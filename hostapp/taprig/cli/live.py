@@ -56,21 +56,29 @@ def live_line(state: LiveState) -> str:
 
 def follow(acquisition, duration: float | None = None, quiet: bool = False) -> None:
     """Print the live line about once a second (overwritten in place on a terminal) for ``duration`` seconds or
-    until Ctrl-C; the acquisition is left open for the caller to close."""
+    until the run is asked to stop (a signal: ``Acquisition.stop_requested``) or Ctrl-C; says once when the board
+    went safe on its own (recording goes on: it moves nothing). The acquisition is left open for the caller."""
+    from taprig.cli.ending import emit
+
     sub = acquisition.hub.subscribe()
     deadline = None if duration is None else time.monotonic() + duration
     tty = sys.stderr.isatty()
     last_print = 0.0
+    halt_told = False
     try:
-        while deadline is None or time.monotonic() < deadline:
-            state = sub.get(timeout=0.5)
+        while (deadline is None or time.monotonic() < deadline) and not acquisition.stop_requested.is_set():
+            state = sub.get(timeout=0.25)
+            if acquisition.halted.is_set() and not halt_told:
+                halt_told = True
+                emit(("\n" if tty and not quiet else "") + f"taprig: {acquisition.halt_reason} (recording goes on)",
+                     sys.stderr)
             if state is None or quiet or time.monotonic() - last_print < 1.0:
                 continue
             last_print = time.monotonic()
-            print(("\r" if tty else "") + live_line(state), end="" if tty else "\n", file=sys.stderr, flush=True)
+            emit(("\r" if tty else "") + live_line(state), sys.stderr, end="" if tty else "\n", flush=True)
     except KeyboardInterrupt:
         pass
     finally:
         sub.close()
         if tty and not quiet:
-            print(file=sys.stderr)
+            emit(stream=sys.stderr)

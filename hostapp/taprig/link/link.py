@@ -101,6 +101,8 @@ class Link:
         self._uid: str | None = None
         self._tx_lock = threading.Lock()
         self._tx_seq = 0
+        self._last_write_mono: float | None = None
+        self._longest_quiet_s = 0.0
         self._next_req_id = 0
         self._cond = threading.Condition()
         self._replies: dict[int, Reply | LinkError | None] = {}
@@ -160,6 +162,11 @@ class Link:
     def connected(self) -> bool:
         """True while a port is open and not known to be broken."""
         return self._port is not None and self._broken is None
+
+    @property
+    def heartbeat_enabled(self) -> bool:
+        """True when this link feeds the device's watchdog with ``HEARTBEAT``."""
+        return self._heartbeat_enabled
 
     @property
     def running(self) -> bool:
@@ -398,29 +405,55 @@ class Link:
             self._next_req_id = self._next_req_id % 0xFFFF + 1  # 1..65535: a device answers unknown types with 0
             return self._next_req_id
 
-    def _write(self, port: serial.SerialBase, msg) -> int:
-        """Encode ``msg`` with the next host sequence number and write it; return that number."""
+    def _write(self, port: serial.SerialBase, msg, guard: Callable[[float], None] | None = None) -> int:
+        """Encode ``msg`` with the next host sequence number and write it; return that number.
+
+        ``guard(quiet_s)``, if given, is called under the send lock just before the bytes go out, with the longest
+        time the host has sent nothing (since the last :meth:`take_longest_quiet`, now included); it may raise to
+        withhold the message (a setpoint decided before the host froze must not go out after it).
+        """
         with self._tx_lock:
+            now = time.monotonic()
+            if guard is not None:
+                quiet = self._longest_quiet_s
+                if self._last_write_mono is not None:
+                    quiet = max(quiet, now - self._last_write_mono)
+                guard(quiet)
+            if self._last_write_mono is not None:
+                self._longest_quiet_s = max(self._longest_quiet_s, now - self._last_write_mono)
+            self._last_write_mono = now
             seq = self._tx_seq
             port.write(encode_message(msg, seq))
             self._tx_seq = (seq + 1) & 0xFFFFFFFF
             return seq
 
-    def send(self, msg) -> int:
+    def take_longest_quiet(self) -> float:
+        """The longest time [s] the host sent the device nothing since the last call (the time since the last
+        frame included), then start afresh. Longer than the device's heartbeat timeout means its watchdog tripped:
+        a frozen or starved host, seen from the host's side."""
+        with self._tx_lock:
+            quiet = self._longest_quiet_s
+            if self._last_write_mono is not None:
+                quiet = max(quiet, time.monotonic() - self._last_write_mono)
+            self._longest_quiet_s = 0.0
+            return quiet
+
+    def send(self, msg, guard: Callable[[float], None] | None = None) -> int:
         """Send a message without waiting for an answer; return its host sequence number.
 
-        Raises :class:`LinkDownError` when the link is down; a write failure marks the link lost.
+        Raises :class:`LinkDownError` when the link is down; a write failure marks the link lost. ``guard`` as
+        in :meth:`_write`.
         """
         port = self._port
         if port is None or self._broken is not None:
             raise LinkDownError(f"link to {self.port_name} is down; cannot send {type(msg).__name__}")
         try:
-            return self._write(port, msg)
+            return self._write(port, msg, guard)
         except _LINK_ERRORS as exc:
             self._broken = exc
             raise LinkDownError(f"writing {type(msg).__name__} to {self.port_name} failed: {exc}") from None
 
-    def command(self, msg, timeout: float = 1.0) -> Reply:
+    def command(self, msg, timeout: float = 1.0, guard: Callable[[float], None] | None = None) -> Reply:
         """Send a host command with a fresh request id and wait for its ``REPLY``.
 
         ``msg`` is a command dataclass (its ``req`` is replaced). Raises :class:`CommandTimeoutError` if no reply
@@ -432,7 +465,7 @@ class Link:
         with self._cond:
             self._replies[req] = None
         try:
-            self.send(msg)
+            self.send(msg, guard)
             deadline = time.monotonic() + timeout
             with self._cond:
                 while self._replies[req] is None:
@@ -468,9 +501,11 @@ class Link:
         """Send ``STOP`` and wait for its reply."""
         return self.command(Stop(req=0), timeout)
 
-    def set_actuator(self, actuator_id: int, value: float, timeout: float = 1.0) -> Reply:
-        """Send ``SET_ACTUATOR`` (value in the actuator's unit) and wait for its reply."""
-        return self.command(SetActuator(req=0, actuator_id=actuator_id, value=value), timeout)
+    def set_actuator(self, actuator_id: int, value: float, timeout: float = 1.0,
+                     guard: Callable[[float], None] | None = None) -> Reply:
+        """Send ``SET_ACTUATOR`` (value in the actuator's unit) and wait for its reply; ``guard`` as in
+        :meth:`_write`."""
+        return self.command(SetActuator(req=0, actuator_id=actuator_id, value=value), timeout, guard)
 
     def _run_heartbeat(self) -> None:
         while True:

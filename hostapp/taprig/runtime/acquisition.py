@@ -1,10 +1,15 @@
 """The acquisition loop: link → recorder (every chunk) and → reducer → hub; commands the other way.
 
 The link's reader thread hands each chunk to :meth:`Acquisition._on_chunk`, which queues it for the session
-writer (nothing recorded is ever skipped) and for the reduction thread. The reduction thread reduces every sample
+writer (nothing recorded is ever skipped) and for the reduction thread, and watches for the board going safe on
+its own (a halt: see :attr:`Acquisition.halt_reason`). The reduction thread reduces every sample
 block, keeps a bounded window of recent raw blocks for point capture, and publishes a :class:`LiveState` to the
 hub. If reduction ever falls behind, display updates are skipped and counted (``display_skipped``); the record is
 unaffected.
+
+Every ending of a run, normal or not, goes through :meth:`Acquisition.shutdown`: actuators to their safe values
+with the replies awaited within a bound, the stream stopped, the link and the session closed, and a ``shutdown``
+event recording what was sent and what the board acknowledged.
 """
 
 from __future__ import annotations
@@ -22,6 +27,7 @@ from typing import Callable
 
 from taprig import __version__
 from taprig.link import Link, LinkError, LinkEvent, LinkEventKind
+from taprig.link.errors import CommandRefusedError, CommandTimeoutError
 from taprig.protocol import Description, DeviceState, Log, RawBlock, Status, channels_to_mask
 from taprig.reduce import ReducedBlock, ReducedMean, Reducer, ScanFlag, finite_mean
 from taprig.protocol import ActuatorKind
@@ -34,6 +40,67 @@ from taprig.session.store import SessionWriter
 
 class AcquisitionError(Exception):
     """A run that cannot start or a command that cannot be carried out, with a message for the operator."""
+
+
+#: Longest wait for the board's reply to each safe value sent at shutdown [s].
+SHUTDOWN_REPLY_S = 1.0
+
+
+@dataclass(frozen=True)
+class ActuatorOutcome:
+    """What happened to one actuator at shutdown: its safe value [SI], and whether it was sent and acknowledged."""
+
+    name: str
+    value: float
+    unit: str
+    sent: bool
+    acknowledged: bool
+    detail: str = ""
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+@dataclass(frozen=True)
+class ShutdownReport:
+    """How a run ended: the reason, each actuator's safe value and its fate, the stream and the session."""
+
+    reason: str
+    actuators: tuple[ActuatorOutcome, ...]
+    link_up: bool
+    stream_stopped: bool
+    session_closed: bool | None  # None when nothing was recorded
+    watchdog_ms: int | None
+    halt_reason: str | None
+
+    @property
+    def all_acknowledged(self) -> bool:
+        return self.link_up and all(a.acknowledged for a in self.actuators)
+
+    def lines(self) -> list[str]:
+        """What the operator is told, in words (no names of program parts)."""
+        out = []
+        if self.actuators and self.link_up:
+            parts = []
+            for a in self.actuators:
+                state = "acknowledged" if a.acknowledged else f"NOT acknowledged ({a.detail})"
+                parts.append(f"{a.name} {a.value:g}{' ' + a.unit if a.unit else ''} {state}")
+            out.append("safe values sent: " + ", ".join(parts))
+        if self.actuators and not self.all_acknowledged:
+            out.append(self.watchdog_text())
+        if self.session_closed is False:
+            out.append("the session file could not be closed cleanly; what was committed is kept")
+        return out
+
+    def watchdog_text(self) -> str:
+        names = " and ".join(a.name for a in self.actuators) or "the actuators"
+        when = (f"within {self.watchdog_ms} ms of the last heartbeat" if self.watchdog_ms
+                else "only if its firmware has a watchdog (this board advertises none): switch it off at its supply")
+        if not self.link_up:
+            return f"the link to the board is down, so nothing could be sent: the board's watchdog sets {names} " \
+                   f"to their safe values {when}; check the rig before anyone reaches in"
+        return f"not every safe value was acknowledged: the board's watchdog sets {names} to their safe values " \
+               f"{when} once taprig has let go of the link; check the rig before anyone reaches in"
 
 
 @dataclass(frozen=True)
@@ -120,6 +187,19 @@ class Acquisition:
         self._stop = threading.Event()
         self._thread = threading.Thread(target=self._run_reduction, name="taprig-reduction", daemon=True)
         self._stream: tuple[float, int] | None = None  # (rate, mask) once streaming
+        # The halt: the board went safe on its own; nothing automated may move an actuator until the operator
+        # clears it (CONTRACTS.md, Halt). The first cause wins.
+        self.halt_reason: str | None = None
+        self.halted = threading.Event()
+        self._halt_lock = threading.Lock()
+        self._driven = False  # the board holds an actuator away from its safe value by our command
+        self._last_state: DeviceState | None = None  # the board's previous STATUS state (reader thread)
+        # An ending asked for (a signal, the operator): automated steps stop at their next check.
+        self.stop_reason: str | None = None
+        self.stop_requested = threading.Event()
+        self._shutdown_lock = threading.Lock()
+        self._shutting_down = threading.Event()
+        self.shutdown_report: ShutdownReport | None = None
         self._unsubscribe = link.subscribe(self._on_chunk, self._on_link_event)
 
     # -- starting and stopping ----------------------------------------------------------------------------
@@ -148,27 +228,144 @@ class Acquisition:
         self.event("start", {"rate_hz": rate_hz, "channel_mask": mask})
         return self.description
 
-    def close(self) -> None:
-        """Stop streaming, send the actuators to safe values, close the link and the session file."""
-        self._stream = None
-        if self.link.connected:
-            for actuator in self.rig.actuators:
+    def close(self) -> ShutdownReport:
+        """End the run: the same single path as :meth:`shutdown`, for a normal ending."""
+        return self.shutdown("run ended")
+
+    @property
+    def shutting_down(self) -> bool:
+        """True once :meth:`shutdown` has begun."""
+        return self._shutting_down.is_set()
+
+    def shutdown(self, reason: str, reply_timeout_s: float = SHUTDOWN_REPLY_S) -> ShutdownReport:
+        """The one way every run ends: actuators to safe values, stream stopped, link and session closed.
+
+        Each actuator's safe value is sent and its reply awaited for at most ``reply_timeout_s``; what was sent
+        and acknowledged is recorded as a ``shutdown`` event before the session is closed, and returned. Safe to
+        call from any thread and more than once: a second call waits for the first and returns its report.
+        Nothing here raises for a dead link or board: the report says what could not be done.
+        """
+        with self._shutdown_lock:
+            if self.shutdown_report is not None:
+                return self.shutdown_report
+            self._shutting_down.set()
+            self._stream = None  # no stream restart after a board reset from here on
+            link_up = self.link.connected
+            outcomes = []
+            if self._thread.ident is not None:  # the run was opened (a run that never opened moved nothing)
+                outcomes = [self._send_safe(a, link_up, reply_timeout_s) for a in self._safe_order()]
+            stream_stopped = False
+            if link_up and self.link.connected:
                 try:
-                    self.set_actuator(actuator.name, actuator.safe)
-                except AcquisitionError:
-                    pass  # the board's watchdog brings it to safe values anyway once the heartbeat stops
-            try:
-                self.link.stop_stream()
-            except LinkError:
-                pass
-        self.link.close()
-        self._unsubscribe()
-        self._stop.set()
-        if self._thread.is_alive():
-            self._thread.join(5)
-        if self.writer is not None:
-            _finish(self.writer, self.link.counters.as_dict())
-        self.hub.close()
+                    self.link.stop_stream(timeout=reply_timeout_s)
+                    stream_stopped = True
+                except LinkError:
+                    pass
+            self.link.close()
+            self._unsubscribe()
+            self._stop.set()
+            if self._thread.is_alive():
+                self._thread.join(5)
+            description = self.description
+            watchdog_ms = description.heartbeat_timeout_ms if description is not None else None
+            closed = None
+            writer = self.writer
+            if writer is not None:
+                writer.add_event("shutdown", {"reason": reason, "link_up": link_up, "stream_stopped": stream_stopped,
+                                              "halt_reason": self.halt_reason,
+                                              "actuators": [o.as_dict() for o in outcomes]})
+                writer.set_meta("stop_reason", reason)
+                _finish(writer, self.link.counters.as_dict())
+                closed = writer.closed
+            self.hub.close()
+            self.shutdown_report = ShutdownReport(reason, tuple(outcomes), link_up, stream_stopped, closed,
+                                                  watchdog_ms or None, self.halt_reason)
+            return self.shutdown_report
+
+    def _safe_order(self):
+        """The actuators in the order they are made safe: the fan (the flow, the danger) before the rest."""
+        return sorted(self.rig.actuators, key=lambda a: a.kind is not ActuatorKind.FAN)
+
+    def _send_safe(self, actuator, link_up: bool, timeout: float) -> ActuatorOutcome:
+        unit = "deg" if actuator.kind is ActuatorKind.ANGLE else actuator.unit
+        shown = math.degrees(actuator.safe) if actuator.kind is ActuatorKind.ANGLE else actuator.safe
+        if not link_up or not self.link.connected:
+            return ActuatorOutcome(actuator.name, shown, unit, False, False, "link down")
+        self._stamp_setpoint(actuator, actuator.safe)
+        try:
+            self.link.set_actuator(actuator.id, actuator.to_device(actuator.safe), timeout=timeout)
+        except CommandTimeoutError:
+            return ActuatorOutcome(actuator.name, shown, unit, True, False, f"no reply within {timeout:g} s")
+        except CommandRefusedError as exc:
+            return ActuatorOutcome(actuator.name, shown, unit, True, False, f"refused: {exc.detail or exc.code}")
+        except LinkError:
+            return ActuatorOutcome(actuator.name, shown, unit, False, False, "link down")
+        return ActuatorOutcome(actuator.name, shown, unit, True, True)
+
+    # -- halting and stopping ---------------------------------------------------------------------------------
+    def _halt(self, reason: str, host_ns: int | None = None, board_safe: bool = True) -> None:
+        """Note that the board went safe on its own (first cause wins); automated sequences stop at once."""
+        with self._halt_lock:
+            if self.halt_reason is not None:
+                return
+            self.halt_reason = reason
+            self._driven = False
+            self.halted.set()
+        self.last_log = reason
+        self.event("halt", {"reason": reason}, host_ns)
+        if board_safe:
+            for actuator in self.rig.actuators:  # the board holds them at their safe values now (PROTOCOL.md §4)
+                self._stamp_setpoint(actuator, actuator.safe, by_board=True)
+
+    def clear_halt(self) -> None:
+        """Allow setpoints again after a halt: only on an explicit action of the operator."""
+        with self._halt_lock:
+            reason, self.halt_reason = self.halt_reason, None
+            self.halted.clear()
+        if reason is not None:
+            self.event("halt_cleared", {"reason": reason})
+
+    def request_stop(self, reason: str) -> None:
+        """Ask the run to end (a signal, the operator): automated steps stop at their next check, and no new
+        setpoint other than a safe value is sent. The caller then calls :meth:`shutdown`."""
+        if self.stop_reason is None:
+            self.stop_reason = reason
+            self.event("stop_requested", {"reason": reason})
+        self.stop_requested.set()
+
+    def check_running(self) -> None:
+        """Raise :class:`AcquisitionError` with the true cause if the run is halted, stopping or shut down."""
+        if self.halted.is_set():
+            raise AcquisitionError(self.halt_reason or "the board went safe")
+        if self.stop_requested.is_set():
+            raise AcquisitionError(self.stop_reason or "stopped")
+        if self._shutting_down.is_set():
+            raise AcquisitionError("the run is ending")
+
+    def _watchdog_s(self) -> float:
+        d = self.description
+        return d.heartbeat_timeout_ms / 1000 if d is not None and d.heartbeat_timeout_ms else 0.0
+
+    def _last_look(self, quiet_s: float) -> None:
+        """The check just before a setpoint's bytes go out (under the link's send lock): refuse it if the run is
+        halted or ending, or if the host has been quiet longer than the board's watchdog time (it froze after
+        deciding to send)."""
+        self._halt_if_stalled(quiet_s)
+        self.check_running()
+
+    def _halt_if_stalled(self, quiet_s: float) -> None:
+        timeout = self._watchdog_s()
+        if self._driven and timeout > 0 and self.link.heartbeat_enabled and quiet_s > timeout:
+            self._halt(f"taprig was held up for {quiet_s:.1f} s without a heartbeat to the board (longer than its "
+                       f"watchdog time of {timeout:g} s), so the board's watchdog set {self._actuator_names()} to "
+                       "their safe values; nothing more is sent until the operator resumes")
+
+    def _check_host_stall(self) -> None:
+        """Halt if the host sent the board nothing for longer than its watchdog time while it held an actuator
+        away from safe: the watchdog has tripped (or is about to), whether or not its report has been read yet."""
+        if self._watchdog_s() <= 0 or not self.link.heartbeat_enabled:  # no heartbeats: the caller feeds it
+            return
+        self._halt_if_stalled(self.link.take_longest_quiet())  # taken (and started afresh) also while not driving
 
     # -- recording on demand -----------------------------------------------------------------------------------
     def attach_writer(self, writer: SessionWriter) -> None:
@@ -208,22 +405,39 @@ class Acquisition:
                                    + ", ".join(a.name for a in self.rig.actuators))
         if not actuator.min <= value <= actuator.max:
             raise AcquisitionError(f"{name}: {value:g} is outside its range {actuator.min:g} … {actuator.max:g}")
+        safe = value == actuator.safe
+        if not safe:  # a safe value may always be sent; anything else only while the run is going and not halted
+            self._check_host_stall()
+            self.check_running()
         previous = self.setpoints[name]
         self._stamp_setpoint(actuator, value)
         try:
-            self.link.set_actuator(actuator.id, actuator.to_device(value))
+            self.link.set_actuator(actuator.id, actuator.to_device(value), guard=None if safe else self._last_look)
+        except AcquisitionError:  # withheld at the last moment: the host froze or the board went safe meanwhile
+            self._stamp_setpoint(actuator, previous, refused=True)
+            raise
         except LinkError as exc:
             self._stamp_setpoint(actuator, previous, refused=True)
+            # The reply may have been held up by the very thing that made the board safe (a frozen host, a
+            # reset): let the reader catch up a moment so the operator hears the true cause.
+            if self.halted.wait(0.25):
+                raise AcquisitionError(f"{name} not set to {value:g}: {self.halt_reason}") from None
             raise AcquisitionError(f"{name}: the board did not take {value:g}: {exc}") from None
+        if not safe:
+            self._driven = True
 
-    def _stamp_setpoint(self, actuator, value: float, refused: bool = False) -> None:
+    def _stamp_setpoint(self, actuator, value: float, refused: bool = False, by_board: bool = False) -> None:
         with self._schedule_lock:
             host_ns = time.time_ns()
             if actuator.kind is ActuatorKind.ANGLE:
                 self._angles.add(host_ns, value)
             self.setpoints[actuator.name] = value
             data = {"actuator": actuator.name, "value": value}
-            self.event("setpoint", {**data, "refused": True} if refused else data, host_ns)
+            if refused:
+                data["refused"] = True
+            if by_board:
+                data["by"] = "board"
+            self.event("setpoint", data, host_ns)
 
     @property
     def reducer(self) -> Reducer:
@@ -260,6 +474,7 @@ class Acquisition:
 
         Says why when it can tell: the board's watchdog tripped (actuators at safe values), or the link is down.
         """
+        self.check_running()
         block = self.recent(seconds)
         if block is None:
             raise AcquisitionError(f"no data (link {self.link_state})")
@@ -277,6 +492,7 @@ class Acquisition:
     def capture_point(self, label: str, seconds: float = 2.0) -> ReducedMean:
         """Average the last ``seconds`` into a point with uncertainties, record it and return it."""
         block = self.recent(seconds)
+        self.check_running()  # after taking the scans: a halt is noted before any scan that follows it arrives
         if block is None or block.n_scans < 2:
             raise AcquisitionError("no data yet to capture a point from")
         mean = self.reducer.reduce_mean(block, alpha_rad=self.alpha_rad)
@@ -312,6 +528,7 @@ class Acquisition:
         writer = self.writer  # once: recording may be stopped from another thread meanwhile
         if writer is not None:
             writer.append_chunk(chunk, host_ns)
+        self._watch_safety(items, host_ns)  # before the scans are kept: no point may use scans after a halt
         if self.link_state in ("connected", "restored") and any(isinstance(i, Description) for i in items):
             self._schedule_resume()  # the board rebooted under a live link (a reset): it is idle and safe now
         blocks = [item for item in items if isinstance(item, RawBlock)]
@@ -325,6 +542,36 @@ class Acquisition:
         except queue.Full:
             self.display_skipped += 1
 
+    def _watch_safety(self, items: list, host_ns: int) -> None:
+        """Halt when the board reports it went safe on its own: a watchdog STATUS or LOG, or a reboot."""
+        self._check_host_stall()
+        live = self.link_state in ("connected", "restored")
+        for item in items:
+            if isinstance(item, Status):
+                try:
+                    state = DeviceState(item.state)
+                except ValueError:  # a state this host does not know: not news of a halt
+                    state = None
+                previous, self._last_state = self._last_state, state
+                self.device_state = state
+                # A board powers up safe (PROTOCOL.md §4): SAFE is news only after it was not, or after we drove it.
+                if state is DeviceState.SAFE and (self._driven or previous not in (None, DeviceState.SAFE)):
+                    self._halt(f"the board's watchdog tripped and set {self._actuator_names()} to their safe "
+                               "values (no heartbeat from taprig reached it in time); nothing more is sent until "
+                               "the operator resumes", host_ns)
+            elif isinstance(item, Log) and item.level >= 30 and _is_watchdog_text(item.text):
+                self._halt(f"the board's watchdog tripped and set {self._actuator_names()} to their safe values "
+                           f"(board: {item.text.strip()}); nothing more is sent until the operator resumes", host_ns)
+            elif isinstance(item, Description) and live:
+                self._last_state = None
+                self._halt(f"the board restarted (a reset, a power dip or a crash) and set "
+                           f"{self._actuator_names()} to their safe values; nothing more is sent until the "
+                           "operator resumes", host_ns)
+
+    def _actuator_names(self) -> str:
+        names = [a.name for a in self.rig.actuators]
+        return " and ".join(names) if len(names) < 3 else ", ".join(names[:-1]) + " and " + names[-1]
+
     def _schedule_resume(self) -> None:
         # Not on the reader thread: the START's reply arrives through that very thread.
         if self._stream is not None:
@@ -334,11 +581,13 @@ class Acquisition:
         """Restart streaming after the board rebooted; actuators stay at their safe values until set again.
 
         Safety: a board that restarted has put its fan and servo to safe values (PROTOCOL.md §4). Driving them
-        back unasked could surprise someone who just reached into the rig, so only the stream is resumed.
+        back unasked could surprise someone who just reached into the rig, so only the stream is resumed (the
+        halt that came with the reboot or the loss has recorded the safe values and stops automated steps).
         """
-        for actuator in self.rig.actuators:
-            self._stamp_setpoint(actuator, actuator.safe)
-        rate, mask = self._stream
+        stream = self._stream
+        if stream is None or self._shutting_down.is_set():
+            return  # the run is ending
+        rate, mask = stream
         try:
             self.link.start_stream(rate, channel_mask=mask)
         except LinkError as exc:
@@ -349,13 +598,19 @@ class Acquisition:
 
     def _on_link_event(self, event: LinkEvent) -> None:
         self.link_state = event.kind.value
+        if event.kind is LinkEventKind.LOST and not self._shutting_down.is_set():
+            timeout = self._watchdog_s()
+            within = f"within {timeout:g} s" if timeout else "if its firmware has a watchdog"
+            self._halt(f"the link to the board on {event.port} was lost (unplugged, or the board stopped "
+                       f"answering); its watchdog sets {self._actuator_names()} to their safe values {within}; "
+                       "nothing more is sent until the operator resumes", event.host_time_ns, board_safe=True)
         if event.kind is LinkEventKind.RESTORED:
             self._schedule_resume()  # a replugged board has rebooted and waits to be started again
         if self.writer is not None and event.kind is not LinkEventKind.RETRY:
             self.writer.add_link_event(event.kind.value, event.detail or event.port, event.host_time_ns)
 
     def _run_reduction(self) -> None:
-        while not self._stop.is_set():
+        while not (self._stop.is_set() and self._work.empty()):  # at the end, what was queued is still reduced
             try:
                 host_ns, items = self._work.get(timeout=0.1)
             except queue.Empty:
@@ -367,10 +622,8 @@ class Acquisition:
                     latest = reducer.reduce(item, alpha_rad=alpha)
                     if self.on_block is not None:
                         self.on_block(host_ns, latest)
-                elif isinstance(item, Log):
+                elif isinstance(item, Log) and not self.halted.is_set():
                     self.last_log = item.text
-                elif isinstance(item, Status):
-                    self.device_state = DeviceState(item.state)
             if latest is not None:
                 self.hub.publish(self._state(host_ns, latest))
 
@@ -381,6 +634,12 @@ class Acquisition:
                          "error": self.writer.error}
         return LiveState(host_ns, block, self.link.counters.as_dict(), self.link_state, dict(self.setpoints),
                          self.scans, recording, self.display_skipped, self.last_log)
+
+
+def _is_watchdog_text(text: str) -> bool:
+    """A LOG line that reports a watchdog trip (the reference firmware's and the simulator's wording)."""
+    low = text.lower()
+    return "watchdog" in low or "no host frame" in low
 
 
 def session_meta(rig: Rig, port: str, ambient) -> dict[str, str]:

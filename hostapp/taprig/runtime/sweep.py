@@ -45,6 +45,7 @@ def wait_device_time(acq: Acquisition, seconds: float, timeout_s: float) -> None
     deadline = time.monotonic() + timeout_s
     with acq.hub.subscribe() as sub:
         while time.monotonic() < deadline:
+            acq.check_running()  # the board went safe, or the run is ending: stop waiting, say why
             state = sub.get(timeout=min(0.5, max(0.0, deadline - time.monotonic())))
             if state is None or state.block is None:
                 continue
@@ -55,6 +56,7 @@ def wait_device_time(acq: Acquisition, seconds: float, timeout_s: float) -> None
             previous = last
             if elapsed >= seconds * 1e9:
                 return
+    acq.check_running()
     raise AcquisitionError(f"no data for {timeout_s:g} s while waiting for the flow to settle (link {acq.link_state})")
 
 
@@ -65,14 +67,20 @@ def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1
 
     ``stop``, when set (by the operator, from another thread), ends the sweep before its next step; the points
     taken so far are returned and nothing more is sent.
+
+    When the board goes safe on its own (a halt: watchdog, reset, lost link) or the run is asked to end, the sweep
+    stops at once, sends nothing more, keeps the points already taken (``on_point`` has seen each) and raises
+    :class:`AcquisitionError` with the cause.
     """
     name = _angle_actuator(acq)
     points = []
+    acq.check_running()
     acq.event("sweep", {"angles_rad": list(map(float, angles_rad)), "settle_s": settle_s, "average_s": average_s})
     for alpha in angles_rad:
         if stop is not None and stop.is_set():
             acq.event("sweep stopped", {"by": "operator", "points": len(points)})
             break
+        acq.check_running()
         acq.set_actuator(name, float(alpha))
         wait_device_time(acq, settle_s + average_s, timeout_s)
         acq.check_flow(average_s)  # a sweep of points without flow would be numbers without meaning

@@ -165,6 +165,11 @@ class SessionWriter:
         """Queue a metadata value (inserted or replaced)."""
         self._queue.put(("meta", (key, str(value))))
 
+    @property
+    def closed(self) -> bool:
+        """True once the writer thread has committed its last batch and closed the file."""
+        return self._closed.is_set()
+
     def close(self, timeout: float = 10.0) -> None:
         """Commit what is queued and close the file; waits at most ``timeout`` seconds."""
         if not self._closed.is_set():

@@ -86,7 +86,9 @@ class SimulatedDevice:
 
     Public state: ``description`` (what it sends in DESCRIPTION), ``plant`` (its flow model), ``actuators``
     (id → :class:`taprig.sim.board.ActuatorState`), ``faults`` (:class:`taprig.sim.faults.LinkFaults`),
-    ``disconnected``, ``host_frames`` (well-formed host frames received since open).
+    ``disconnected``, ``host_frames`` (well-formed host frames received since open), ``commands`` (every host
+    command other than HEARTBEAT received since open, as (true time [ns], state before it, message), in order:
+    what the board was told, for tests and ``taprig sim --command-log``).
     """
 
     def __init__(self, rig: Rig, options: SimOptions = SimOptions()):
@@ -113,6 +115,7 @@ class SimulatedDevice:
         self.actuators = build_actuators(self.description, options)
         self.disconnected = False
         self.host_frames = 0
+        self.commands: list[tuple[int, DeviceState, object]] = []
         self._boot()
 
     # -- what the driver uses ------------------------------------------------------------------------------
@@ -182,6 +185,8 @@ class SimulatedDevice:
             self.host_frames += well_formed
             self._watchdog_ns = self._now + self._timeout_ns()
         for item in items:
+            if not isinstance(item, Heartbeat):
+                self.commands.append((self._now, self.state, item))
             self._command(item)
         unknown = after.unknown_types - before.unknown_types - foreign
         malformed = well_formed - len(items) - unknown - (after.duplicates - before.duplicates)
@@ -201,6 +206,15 @@ class SimulatedDevice:
             self._now = max(self._now, int(due))
             action()
         self._now = max(self._now, int(t_ns))
+
+    def press_reset(self) -> None:
+        """Reboot the board now, as its reset button would (actuators to safe, DESCRIPTION with BOOT)."""
+        if not self.disconnected:
+            self._reboot()
+
+    def unplug(self) -> None:
+        """Vanish now, as a pulled USB cable would."""
+        self._disconnect()
 
     # -- boot, events ----------------------------------------------------------------------------------------
     def _boot(self) -> None:

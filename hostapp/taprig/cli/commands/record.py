@@ -76,31 +76,42 @@ def _remove_unused(out) -> None:
 
 def print_summary(acquisition, out, stream=None) -> None:
     """The last lines of a run: counters, where the session is, and any recording error."""
+    from taprig.cli.ending import emit
+
     stream = stream or sys.stdout  # looked up now: a default bound at import would outlive a replaced stdout
     c = acquisition.link.counters.as_dict()
-    print(f"recorded {acquisition.scans} scans to {out}", file=stream)
-    print("counters: " + ", ".join(f"{k} {v}" for k, v in c.items() if k != "bytes"), file=stream)
+    emit(f"recorded {acquisition.scans} scans to {out}", stream)
+    emit("counters: " + ", ".join(f"{k} {v}" for k, v in c.items() if k != "bytes"), stream)
     if acquisition.writer is not None and acquisition.writer.error:
-        print(acquisition.writer.error, file=sys.stderr)
+        emit(acquisition.writer.error, sys.stderr)
 
 
 def run(args) -> int:
     from taprig.cli.dashboard import start_dashboard
+    from taprig.cli.ending import RunEnding, report_ending
     from taprig.cli.live import follow
     from taprig.runtime.station import Station
 
-    acquisition, out = open_run(args, args.port, "sessions")
-    station = dashboard = None
-    try:
-        if not args.no_dashboard:
-            station = Station(acquisition, real_board=not args.port.lower().startswith("sim://"))
-            dashboard = start_dashboard(args, station, sessions_dir=Path(out).parent)
-        follow(acquisition, args.duration, args.quiet)
-    finally:
-        if dashboard is not None:
-            dashboard.close()
-        if station is not None:
-            station.close()
-        acquisition.close()
+    with RunEnding() as ending:
+        acquisition, out = open_run(args, args.port, "sessions")
+        ending.attach(acquisition)
+        station = dashboard = None
+        try:
+            if not args.no_dashboard:
+                station = Station(acquisition, real_board=not args.port.lower().startswith("sim://"))
+                dashboard = start_dashboard(args, station, sessions_dir=Path(out).parent)
+            follow(acquisition, args.duration, args.quiet)  # until the duration, a signal or Ctrl-C
+        except BaseException:  # a defect: the rig is made safe and the session closed before it is reported
+            acquisition.shutdown("internal error")
+            raise
+        finally:
+            if dashboard is not None:
+                dashboard.close()
+            if station is not None:
+                station.close()
+        report = acquisition.shutdown(ending.reason or "duration reached")
+    report_ending("record", report, ending.reason)
     print_summary(acquisition, out)
+    if ending.exit_code is not None:
+        return ending.exit_code
     return 1 if acquisition.writer.error else 0

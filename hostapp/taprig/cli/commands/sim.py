@@ -7,7 +7,8 @@ and there the ``sim://`` URL gives the same board inside the host process.
 
 Time follows the wall clock (scaled by ``--speed``); with ``--speed max`` the board runs as fast as the client
 drains the terminal. A write stall leaves the client's bytes waiting in the terminal's buffer; a disconnect closes
-the terminal, so the client's next read fails as when a USB board is pulled.
+the terminal, so the client's next read fails as when a USB board is pulled. SIGUSR1 presses the board's reset
+button and SIGUSR2 pulls its cable, at a moment of the caller's choosing (tests of how a host copes).
 """
 
 from __future__ import annotations
@@ -38,6 +39,8 @@ def register(sub) -> None:
     p = sub.add_parser("sim", help="run a simulated rig on a pseudo-terminal and print its device path")
     p.add_argument("--rig", required=True, help="rig file (TOML) to simulate")
     p.add_argument("--seconds", type=finite_positive, default=None, help="stop after this many seconds of wall time")
+    p.add_argument("--command-log", metavar="FILE", default=None,
+                   help="append every command the board receives (all but heartbeats) to FILE, one JSON line each")
     for f in fields(SimOptions):
         p.add_argument(f"--{f.name.replace('_', '-')}", dest=f"opt_{f.name}", metavar="VALUE",
                        help=f"{SimOptions.help_of(f.name)} (default {_default_text(f.default)})")
@@ -79,17 +82,27 @@ def run(args) -> int:
     from taprig.sim import registry
 
     device = SimulatedDevice(rig, options)
-    bridge = PtyBridge(device, options.speed)
+    try:
+        log = open(args.command_log, "a", encoding="utf-8") if args.command_log else None
+    except OSError as exc:
+        raise UserError(f"{args.command_log}: cannot open the command log ({exc.strerror or exc})") from None
+    bridge = PtyBridge(device, options.speed, log)
     entry = registry.announce(bridge.path, rig.id, args.rig)  # so that `taprig ports` lists it
     print(bridge.path, flush=True)
     print(f"taprig sim: rig {rig.id!r} on {bridge.path} (Ctrl-C to stop)", file=sys.stderr, flush=True)
-    previous = signal.signal(signal.SIGTERM, bridge.stop)
+    handlers = {signal.SIGTERM: bridge.stop}
+    if hasattr(signal, "SIGUSR1"):
+        handlers.update({signal.SIGUSR1: bridge.press_reset, signal.SIGUSR2: bridge.unplug})
+    previous = {sig: signal.signal(sig, handler) for sig, handler in handlers.items()}
     try:
         bridge.serve(args.seconds)
     finally:
-        signal.signal(signal.SIGTERM, previous)
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
         registry.withdraw(entry)
         bridge.close()
+        if log is not None:
+            log.close()
     print(f"taprig sim: {bridge.summary()}", file=sys.stderr)
     return 0
 
@@ -97,10 +110,15 @@ def run(args) -> int:
 class PtyBridge:
     """Moves bytes between a :class:`taprig.sim.device.SimulatedDevice` and the master side of a pseudo-terminal."""
 
-    def __init__(self, device, speed: float):
+    def __init__(self, device, speed: float, command_log=None):
         import tty
 
         self.device = device
+        self._log = command_log
+        self._logged = 0
+        self._state = device.state
+        self._resets = device.tally.resets
+        self._action: str | None = None
         self._speed = speed
         self._master, self._slave = os.openpty()
         tty.setraw(self._slave)  # no echo, no line editing: the terminal carries bytes unchanged
@@ -115,6 +133,14 @@ class PtyBridge:
     def stop(self, *_signal_args) -> None:
         """Ask :meth:`serve` to return (safe to call from a signal handler)."""
         self._running = False
+
+    def press_reset(self, *_signal_args) -> None:
+        """Ask for a reboot of the board at the next turn of :meth:`serve` (safe from a signal handler)."""
+        self._action = "reset"
+
+    def unplug(self, *_signal_args) -> None:
+        """Ask for the board to vanish at the next turn of :meth:`serve` (safe from a signal handler)."""
+        self._action = "unplug"
 
     def close(self) -> None:
         """Close both sides of the terminal (idempotent)."""
@@ -142,16 +168,59 @@ class PtyBridge:
         compressed = self._speed == float("inf")
         while self._running and (end is None or time.monotonic() < end):
             device = self.device
+            action, self._action = self._action, None
+            if action == "reset":
+                device.produce_until(max(device.now_ns, self._sim_now_ns()) if not compressed else device.now_ns)
+                device.press_reset()
+            elif action == "unplug":
+                device.unplug()
+                self._pending.clear()  # what was on its way is lost with the cable
             if compressed:
                 if not self._pending and self._busy():
                     device.produce_until(int(max(device.next_due_ns(), device.now_ns + COMPRESSED_STEP_NS)))
             else:
                 device.produce_until(max(device.now_ns, self._sim_now_ns()))
             self._take(device.read())
+            self._note_safety()
             if device.disconnected and not self._pending:
                 print("taprig sim: device disconnected (injected fault)", file=sys.stderr)
                 return
             self._exchange(self._wait_s(compressed))
+
+    def _note_safety(self) -> None:
+        """Say on stderr (and in the command log) when the board makes itself safe: a watchdog trip, a reboot."""
+        from taprig.protocol import DeviceState
+
+        device = self.device
+        state, resets = device.state, device.tally.resets
+        events = []
+        if state is DeviceState.SAFE and self._state is not DeviceState.SAFE:
+            events.append("watchdog")
+        if resets != self._resets:
+            events.append("reset")
+        self._state, self._resets = state, resets
+        for event in events:
+            print(f"taprig sim: {event} at {device.now_ns / 1e9:.3f} s: actuators at safe values", file=sys.stderr,
+                  flush=True)
+            if self._log is not None:
+                import json
+
+                self._log.write(json.dumps({"t_s": device.now_ns / 1e9, "event": event}) + "\n")
+                self._log.flush()
+
+    def _log_commands(self) -> None:
+        """Append the commands received since the last call to the command log, one JSON object a line."""
+        if self._log is None:
+            return
+        import dataclasses
+        import json
+
+        for t_ns, state, msg in self.device.commands[self._logged:]:
+            fields_ = {k: v for k, v in dataclasses.asdict(msg).items() if k != "req"}
+            self._log.write(json.dumps({"t_s": t_ns / 1e9, "command": type(msg).__name__, **fields_,
+                                        "state_before": state.name}) + "\n")
+        self._logged = len(self.device.commands)
+        self._log.flush()
 
     def _take(self, data: bytes) -> None:
         if len(self._pending) > BACKLOG_LIMIT:
@@ -187,6 +256,7 @@ class PtyBridge:
                 device.produce_until(max(device.now_ns, self._sim_now_ns()))
                 self._take(device.read())
             device.receive(data)
+            self._log_commands()
         if writable:
             try:
                 n = os.write(self._master, self._pending[:65536])

@@ -109,9 +109,12 @@ def sweep(args, port: str, stem: str | None = None, linger: bool = False) -> int
     """Open ``port``, zero, start the fan, sweep, print the table and the lift curve; record it all.
 
     The dashboard shows the run (unless ``--no-dashboard``); with ``linger`` it stays up after the sweep, the
-    actuators at their safe values, until Ctrl-C.
+    actuators at their safe values, until Ctrl-C. Every ending (the last point, a halt of the board, an error, a
+    signal) takes the one shutdown path: actuators to their safe values with the replies awaited, the session
+    closed, and the operator told what happened.
     """
     from taprig.cli.commands.record import open_run, print_summary
+    from taprig.cli.ending import RunEnding, emit, report_ending
     from taprig.cli.runopts import load_rig_arg
     from taprig.protocol import ActuatorKind
 
@@ -121,74 +124,125 @@ def sweep(args, port: str, stem: str | None = None, linger: bool = False) -> int
     if fan is None:
         raise UserError(f"{args.rig}: this rig has no fan actuator for the sweep to start")
     if not fan.min <= args.fan <= fan.max:
-        raise UserError(f"--fan {args.fan:g} is outside the fan's range {fan.min:g} … {fan.max:g} ({fan.unit})")
-    acq, out = open_run(args, port, "sessions", stem=stem, rig=rig)
-    station = dashboard = None
-    try:
-        if not args.no_dashboard:
-            from taprig.cli.dashboard import start_dashboard
-            from taprig.runtime.station import Station
+        raise UserError(f"--fan {args.fan:g} is outside the fan's range {fan.min:g} … {fan.max:g} ({fan.unit})", 2)
+    command = getattr(args, "command", None) or "sweep"
+    with RunEnding() as ending:
+        acq, out = open_run(args, port, "sessions", stem=stem, rig=rig)
+        ending.attach(acq)
+        station = dashboard = None
+        run = _SweepRun(args, acq, fan, targets, linger)
+        try:
+            if not args.no_dashboard:
+                from taprig.cli.dashboard import start_dashboard
+                from taprig.runtime.station import Station
 
-            station = Station(acq, real_board=not port.lower().startswith("sim://"))
-            station.needs_confirmation = False  # the operator confirmed at the terminal (or with --yes)
-            dashboard = start_dashboard(args, station, sessions_dir=Path(out).parent)
-        print(f"{acq.rig.name!r} on {acq.link.port_name} ({acq.description.firmware}, {len(acq.rig.taps)} taps), "
-              f"recording to {out}")
-        return _sweep_run(args, acq, fan, targets, station, linger)
-    finally:
-        if dashboard is not None:
-            dashboard.close()
-        if station is not None:
-            station.close()
-        acq.close()  # every actuator to its safe value, also on Ctrl-C
-        print_summary(acq, out)
-        me = program_name()
-        print(f"next: {me} info {out}   {me} review {out}   {me} export {out} --format csv -o run.csv")
+                station = Station(acq, real_board=not port.lower().startswith("sim://"))
+                station.needs_confirmation = False  # the operator confirmed at the terminal (or with --yes)
+                dashboard = start_dashboard(args, station, sessions_dir=Path(out).parent)
+            run.station = station
+            emit(f"{acq.rig.name!r} on {acq.link.port_name} ({acq.description.firmware}, {len(acq.rig.taps)} taps), "
+                 f"recording to {out}")
+            run.go()
+        except BaseException:  # a defect: the rig is made safe and the session closed before it is reported
+            acq.shutdown("internal error")
+            raise
+        finally:
+            if dashboard is not None:
+                dashboard.close()
+            if station is not None:
+                station.close()
+        signal_reason = None if run.lingering else ending.reason  # Ctrl-C is how a lingering dashboard ends
+        reason = signal_reason or (acq.halt_reason if acq.halted.is_set() else None) or run.failure
+        report = acq.shutdown(reason or ending.reason or "sweep finished")
+    points = run.points
+    if reason is not None:
+        kept = (f"; the {len(points)} point{'s' if len(points) > 1 else ''} taken before "
+                f"{'are' if len(points) > 1 else 'is'} kept in the session") if points else ""
+        report_ending(command, report, reason + kept)
+    else:
+        report_ending(command, report)
+    print_summary(acq, out)
+    me = program_name()
+    emit(f"next: {me} info {out}   {me} review {out}   {me} export {out} --format csv -o run.csv")
+    if signal_reason is not None:
+        return ending.exit_code
+    return 0 if reason is None else 1
 
 
-def _sweep_run(args, acq, fan, targets, station, linger: bool) -> int:
-    """Zero, fan, the sweep with its table and lift curve; then, with ``linger``, keep the dashboard up."""
-    from taprig.cli.live import follow
-    from taprig.runtime.acquisition import AcquisitionError
-    from taprig.runtime.sweep import run_sweep, sweep_lift_curve, wait_device_time
+class _SweepRun:
+    """Zero, fan, the sweep with its table and lift curve; then, with ``linger``, keep the dashboard up.
 
-    def on_point(point) -> None:
-        print(point_line(point), flush=True)
-        if station is not None:
-            station.add_sweep_point(point)
+    A halt, a stop request or a failure ends it with ``failure`` set (the cause in words); the points taken are
+    kept in ``points``.
+    """
 
-    try:
-        wait_device_time(acq, 1.0, 20)
-        if not args.no_zero:
-            acq.zero(min(1.0, args.average))
-            print("wind-off zero taken")
-        acq.set_actuator(fan.name, args.fan)
-        wait_device_time(acq, args.spin_up, 30 + args.spin_up)
-        acq.check_flow(min(1.0, args.average))
-        print(f"\n{HEADER}")
-        points = run_sweep(acq, targets, settle_s=args.settle, average_s=args.average, on_point=on_point)
-        curve = sweep_lift_curve(points)
+    def __init__(self, args, acq, fan, targets, linger: bool):
+        self.args, self.acq, self.fan, self.targets, self.linger = args, acq, fan, targets, linger
+        self.station = None
+        self.points = []
+        self.failure: str | None = None
+        self.lingering = False
+
+    def on_point(self, point) -> None:
+        from taprig.cli.ending import emit
+
+        self.points.append(point)
+        emit(point_line(point), flush=True)
+        if self.station is not None:
+            self.station.add_sweep_point(point)
+
+    def go(self) -> None:
+        from taprig.cli.ending import emit
+        from taprig.cli.live import follow
+        from taprig.runtime.acquisition import AcquisitionError
+        from taprig.runtime.sweep import run_sweep, wait_device_time
+
+        args, acq = self.args, self.acq
+        try:
+            wait_device_time(acq, 1.0, 20)
+            if not args.no_zero:
+                acq.zero(min(1.0, args.average))
+                emit("wind-off zero taken")
+            acq.set_actuator(self.fan.name, args.fan)
+            wait_device_time(acq, args.spin_up, 30 + args.spin_up)
+            acq.check_flow(min(1.0, args.average))
+            emit(f"\n{HEADER}")
+            run_sweep(acq, self.targets, settle_s=args.settle, average_s=args.average, on_point=self.on_point)
+        except AcquisitionError as exc:
+            self.failure = str(exc)
+            return
+        if not self._print_curve():
+            self.failure = "no lift curve from these points"
+            return
+        if self.linger and self.station is not None:
+            for actuator in acq.rig.actuators:
+                acq.set_actuator(actuator.name, actuator.safe)
+            emit("\nsweep done, fan and angle back at their safe values; the dashboard stays up to run the rig from "
+                 "the page. Ctrl-C ends.", sys.stderr)
+            self.lingering = True
+            follow(acq, None, quiet=True)
+
+    def _print_curve(self) -> bool:
+        """Print the lift curve of the points; False (and why, on stderr) when they do not make one."""
+        from taprig.cli.ending import emit
+        from taprig.runtime.sweep import sweep_lift_curve
+
+        try:
+            curve = sweep_lift_curve(self.points)
+        except ValueError as exc:  # too few usable points for a lift curve
+            emit(f"taprig {getattr(self.args, 'command', None) or 'sweep'}: no lift curve: {exc}", sys.stderr)
+            return False
         per_deg = math.pi / 180
-        print(f"\nlift slope {curve.slope * per_deg:.4f} ± {curve.u_slope * per_deg:.4f} (scatter about the line) "
-              f"per degree over "
-              f"{math.degrees(curve.linear_range[0]):.1f}…{math.degrees(curve.linear_range[1]):.1f}° "
-              f"(thin-airfoil theory: 0.1097), zero lift at {math.degrees(curve.alpha_zero_lift):.2f}° "
-              "(angles corrected for the walls)")
+        emit(f"\nlift slope {curve.slope * per_deg:.4f} ± {curve.u_slope * per_deg:.4f} (scatter about the line) "
+             f"per degree over "
+             f"{math.degrees(curve.linear_range[0]):.1f}…{math.degrees(curve.linear_range[1]):.1f}° "
+             f"(thin-airfoil theory: 0.1097), zero lift at {math.degrees(curve.alpha_zero_lift):.2f}° "
+             "(angles corrected for the walls)")
         if curve.stalled:
-            print(f"stall at {math.degrees(curve.alpha_stall):.1f}°, Cl max {curve.cl_max:.3f}")
+            emit(f"stall at {math.degrees(curve.alpha_stall):.1f}°, Cl max {curve.cl_max:.3f}")
         else:
-            print(f"no stall within the sweep (Cl max {curve.cl_max:.3f} at {math.degrees(curve.alpha_cl_max):.1f}°)")
-    except AcquisitionError as exc:
-        raise UserError(str(exc)) from None
-    except ValueError as exc:  # too few usable points for a lift curve
-        raise UserError(f"no lift curve: {exc}") from None
-    if linger and station is not None:
-        for actuator in acq.rig.actuators:
-            acq.set_actuator(actuator.name, actuator.safe)
-        print("\nsweep done, fan and angle back at their safe values; the dashboard stays up to run the rig from "
-              "the page. Ctrl-C ends.", file=sys.stderr)
-        follow(acq, None, quiet=True)
-    return 0
+            emit(f"no stall within the sweep (Cl max {curve.cl_max:.3f} at {math.degrees(curve.alpha_cl_max):.1f}°)")
+        return True
 
 
 def run(args) -> int:
