@@ -43,7 +43,7 @@ class AcquisitionError(Exception):
 
 
 #: Longest wait for the board's reply to each safe value sent at shutdown [s].
-SHUTDOWN_REPLY_S = 1.0
+SHUTDOWN_REPLY_S = 2.0
 
 
 @dataclass(frozen=True)
