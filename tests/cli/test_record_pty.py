@@ -76,6 +76,9 @@ def test_rig_that_does_not_match_the_board(tmp_path, sim_clean):
                  "--duration", "1", "-o", str(tmp_path / "x.taprig"))
     assert rec.returncode == 1
     assert "does not match rig 'venturi-8'" in rec.stderr and "Traceback" not in rec.stderr
+    # one difference a line, each a short line a person can read
+    listed = [line for line in rec.stderr.splitlines() if line.startswith("  - ")]
+    assert len(listed) >= 1 and all(len(line) < 300 for line in listed)
 
 
 def test_missing_port_is_one_line(tmp_path):

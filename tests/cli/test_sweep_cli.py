@@ -31,27 +31,47 @@ def test_real_board_needs_confirmation(capsys, monkeypatch):
     assert "confirm with --yes" in capsys.readouterr().err
 
 
+def exit_code(argv) -> int:
+    """The command line's exit code, whether argparse refused it (SystemExit) or the command returned."""
+    try:
+        return main([str(a) for a in argv])
+    except SystemExit as exc:
+        return exc.code
+
+
 @pytest.mark.parametrize("args, message", [
-    (["--step-deg", "0"], "--step-deg must be positive"),
+    (["--step-deg", "0"], "argument --step-deg: expected a finite number > 0, got '0'"),
+    (["--step-deg", "-2"], "argument --step-deg: expected a finite number > 0, got '-2'"),
+    (["--step-deg", "nan"], "argument --step-deg"),
+    (["--to-deg", "inf"], "argument --to-deg"),
+    (["--average", "0"], "argument --average"),
+    (["--settle", "-1"], "argument --settle"),
+    (["--fan", "nan"], "argument --fan"),
+    (["--rate", "-5"], "argument --rate"),
     (["--from-deg", "30", "--to-deg", "40"], "at least 3 angles within the servo's limits"),
-])
-def test_bad_sweep_ranges(tmp_path, capsys, args, message):
-    assert main(["sweep", "--rig", RIG, "--port", FAST, "-o", str(tmp_path / "s.taprig"), *args]) == 1
-    assert message in capsys.readouterr().err
-    assert not (tmp_path / "s.taprig").exists()  # refused before anything was opened
-
-
-@pytest.mark.parametrize("args, message", [
-    (["--step-deg", "nan"], "--step-deg must be a finite number"),
-    (["--to-deg", "inf"], "--to-deg must be a finite number"),
     (["--step-deg", "1e-12"], "more than 1000 angles"),
-    (["--average", "0"], "--average must be more than 0 s"),
-    (["--settle", "-1"], "--settle must be 0 s or more"),
+    (["--fan", "5"], "--fan 5 is outside the fan's range"),
 ])
-def test_bad_numbers_are_refused_before_anything_opens(tmp_path, capsys, args, message):
-    assert main(["sweep", "--rig", RIG, "--port", FAST, "-o", str(tmp_path / "s.taprig"), *args]) == 1
-    assert message in capsys.readouterr().err
+def test_bad_values_are_a_bad_command_line_refused_before_anything_opens(tmp_path, capsys, args, message):
+    # DEVELOPERS.md, Habits: an option value out of range is exit 2, whatever is on disk
+    assert exit_code(["sweep", "--rig", RIG, "--port", FAST, "-o", tmp_path / "s.taprig", *args]) == 2
+    err = capsys.readouterr().err
+    assert message in err and "Traceback" not in err
     assert not (tmp_path / "s.taprig").exists()
+
+
+def test_demo_refuses_bad_values_the_same_way(tmp_path, capsys):
+    assert exit_code(["demo", "--fast", "--step-deg", "-2", "-o", tmp_path / "d.taprig"]) == 2
+    assert "argument --step-deg" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("name, hint", [("run.csv", "run.taprig"), ("run", "run.taprig"), ("run.db", "run.taprig")])
+def test_a_session_is_written_only_under_its_own_suffix(tmp_path, capsys, name, hint):
+    out = tmp_path / name
+    code = exit_code(["record", "--rig", RIG, "--port", FAST, "--duration", "0.5", "--no-dashboard", "-o", out])
+    err = capsys.readouterr().err
+    assert code == 2 and hint in err and "Traceback" not in err
+    assert not out.exists() and not (tmp_path / hint).exists()
 
 
 def test_a_sweep_without_flow_stops_and_says_why(tmp_path, capsys):

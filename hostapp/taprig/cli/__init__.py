@@ -62,6 +62,14 @@ def bounded(low: float, high: float, unit: str, low_open: bool = False):
     return parse
 
 
+def finite(text: str) -> float:
+    """An argparse type: any finite number (``inf`` and ``nan`` are refused)."""
+    value = _number(text)
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"expected a finite number, got {text!r}")
+    return value
+
+
 def finite_nonnegative(text: str) -> float:
     """An argparse type: a finite number >= 0 (``inf`` and ``nan`` are refused)."""
     value = _number(text)

@@ -167,12 +167,22 @@ def build_reducer(rig: Rig, calibration: Calibration | None, ambient: Ambient) -
         raise UserError(str(exc)) from None
 
 
+#: The file name suffix of a session file (docs/session-format.md).
+SESSION_SUFFIX = ".taprig"
+
+
 def new_output_path(path: str | None, default_dir: str, stem: str) -> Path:
     """The session file to write: ``path`` if given (must not exist), else a new name under ``default_dir``."""
     from datetime import datetime
 
     if path:
         out = Path(path)
+        if out.suffix.lower() != SESSION_SUFFIX and not out.is_dir():
+            better = out.with_suffix(SESSION_SUFFIX) if out.suffix else Path(f"{out}{SESSION_SUFFIX}")
+            raise UserError(f"{out}: a session is an SQLite file and is named *{SESSION_SUFFIX}; write it as "
+                            f"{better} (and `taprig export {better} --format csv -o {out.with_suffix('.csv')}` makes "
+                            "the CSV)" if out.suffix.lower() in (".csv", ".parquet", ".json", ".txt", ".tsv", ".xlsx")
+                            else f"{out}: session files are named *{SESSION_SUFFIX}; write it as {better}", 2)
         if out.is_dir():
             raise UserError(f"{out}: is a directory; give a file name for the session, such as {out / 'run.taprig'}")
         if out.exists():

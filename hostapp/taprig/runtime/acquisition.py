@@ -214,7 +214,9 @@ class Acquisition:
         if differences:
             self.link.close()
             raise AcquisitionError(
-                f"the board on {self.link.port_name} does not match rig {self.rig.id!r}: " + "; ".join(differences))
+                f"the board on {self.link.port_name} does not match rig {self.rig.id!r} "
+                f"({len(differences)} difference{'s' if len(differences) > 1 else ''}):"
+                + "".join(f"\n  - {d}" for d in differences))
         if self.writer is not None:
             self.writer.set_meta("device_description", _description_json(self.description))
         self._thread.start()

@@ -10,9 +10,13 @@ import math
 import sys
 from pathlib import Path
 
-from taprig.cli import UserError, program_name
+from taprig.cli import (UserError, bounded, finite, finite_nonnegative, finite_positive, program_name,
+                        scan_rate)
 from taprig.cli.dashboard import add_dashboard_options
 from taprig.cli.runopts import add_rig_options
+
+#: An angle option [deg]: a finite number within a full turn either way (the servo's own limits are checked later).
+ANGLE = bounded(-360.0, 360.0, "deg")
 
 SAFETY = ("Safety on a real rig: fan guards on, eye protection with compressed air, never defeat an interlock; "
           "local codes and your supervisor's rules come first (README, Safety).")
@@ -20,15 +24,15 @@ SAFETY = ("Safety on a real rig: fan guards on, eye protection with compressed a
 
 def add_sweep_options(p) -> None:
     """The options a sweep shares with ``taprig demo``."""
-    p.add_argument("--fan", type=float, default=0.8, help="fan setting during the sweep, in the fan's unit (default 0.8)")
-    p.add_argument("--from-deg", type=float, default=-4.0, dest="start_deg", help="first angle [°] (default −4)")
-    p.add_argument("--to-deg", type=float, default=None, dest="stop_deg", help="last angle [°] (default: the servo's upper limit)")
-    p.add_argument("--step-deg", type=float, default=2.0, help="angle step [°] (default 2)")
-    p.add_argument("--settle", type=float, default=1.0, metavar="S", help="wait after each step before averaging [s]")
-    p.add_argument("--average", type=float, default=1.0, metavar="S", help="averaging window of each point [s]")
-    p.add_argument("--spin-up", type=float, default=4.0, metavar="S", help="wait for the flow after starting the fan [s]")
+    p.add_argument("--fan", type=finite, default=0.8, help="fan setting during the sweep, in the fan's unit (default 0.8)")
+    p.add_argument("--from-deg", type=ANGLE, default=-4.0, dest="start_deg", help="first angle [°] (default −4)")
+    p.add_argument("--to-deg", type=ANGLE, default=None, dest="stop_deg", help="last angle [°] (default: the servo's upper limit)")
+    p.add_argument("--step-deg", type=finite_positive, default=2.0, help="angle step [°] (default 2)")
+    p.add_argument("--settle", type=finite_nonnegative, default=1.0, metavar="S", help="wait after each step before averaging [s]")
+    p.add_argument("--average", type=finite_positive, default=1.0, metavar="S", help="averaging window of each point [s]")
+    p.add_argument("--spin-up", type=finite_nonnegative, default=4.0, metavar="S", help="wait for the flow after starting the fan [s]")
     p.add_argument("--no-zero", action="store_true", help="skip the wind-off zero before the fan starts")
-    p.add_argument("--rate", type=float, default=500.0, metavar="HZ", help="scan rate [Hz] (default 500)")
+    p.add_argument("--rate", type=scan_rate, default=500.0, metavar="HZ", help="scan rate [Hz] (default 500)")
     p.add_argument("-o", "--output", metavar="FILE", help="session file (default: sessions/<rig>-<time>.taprig)")
     add_dashboard_options(p)
 
@@ -49,19 +53,19 @@ MAX_ANGLES = 1000
 
 
 def _check_numbers(args) -> None:
-    """Every number of a sweep finite and in range, before anything opens or moves."""
+    """What the argparse types cannot see alone (they check each value: finite, in range; exit 2)."""
     for flag, value in (("--from-deg", args.start_deg), ("--to-deg", args.stop_deg), ("--step-deg", args.step_deg),
                         ("--fan", args.fan), ("--settle", args.settle), ("--average", args.average),
-                        ("--spin-up", args.spin_up)):
+                        ("--spin-up", args.spin_up)):  # also for callers that build the options themselves
         if value is not None and not math.isfinite(value):
-            raise UserError(f"{flag} must be a finite number, got {value}")
+            raise UserError(f"{flag} must be a finite number, got {value}", 2)
     for flag, value in (("--settle", args.settle), ("--spin-up", args.spin_up)):
         if value < 0:
-            raise UserError(f"{flag} must be 0 s or more, got {value:g}")
+            raise UserError(f"{flag} must be 0 s or more, got {value:g}", 2)
     if args.average <= 0:
-        raise UserError(f"--average must be more than 0 s, got {args.average:g}")
+        raise UserError(f"--average must be more than 0 s, got {args.average:g}", 2)
     if args.step_deg <= 0:
-        raise UserError(f"--step-deg must be positive, got {args.step_deg:g}")
+        raise UserError(f"--step-deg must be positive, got {args.step_deg:g}", 2)
 
 
 def angles(args, rig) -> list[float]:
@@ -75,13 +79,13 @@ def angles(args, rig) -> list[float]:
     stop = math.degrees(servo.max) if args.stop_deg is None else args.stop_deg
     if (stop - args.start_deg) / args.step_deg > MAX_ANGLES:
         raise UserError(f"--from-deg {args.start_deg:g} to {stop:g} in steps of {args.step_deg:g}° is more than "
-                        f"{MAX_ANGLES} angles; take a larger --step-deg")
+                        f"{MAX_ANGLES} angles; take a larger --step-deg", 2)
     n = int(math.floor((stop - args.start_deg) / args.step_deg + 1e-9)) + 1
     chosen = [math.radians(args.start_deg + k * args.step_deg) for k in range(max(n, 0))]
     inside = [a for a in chosen if servo.min - 1e-12 <= a <= servo.max + 1e-12]
     if len(inside) < 3:
         raise UserError(f"the sweep needs at least 3 angles within the servo's limits "
-                        f"{math.degrees(servo.min):g}…{math.degrees(servo.max):g}°; check --from-deg/--to-deg")
+                        f"{math.degrees(servo.min):g}…{math.degrees(servo.max):g}°; check --from-deg/--to-deg", 2)
     return inside
 
 
