@@ -110,12 +110,26 @@ def test_stop_sends_every_actuator_to_its_safe_value(live):
     assert live.acq.setpoints == {a.name: a.safe for a in live.rig.actuators}
 
 
-def test_zero_is_refused_with_the_fan_running_and_taken_wind_off(live):
+def test_zero_is_refused_with_the_fan_running_and_taken_wind_off(tmp_path):
+    from tests.web.conftest import AIRFOIL, Live
+
+    live = Live(tmp_path, AIRFOIL, "seed=4&speed=10&watchdog_ms=0&fan_tau=10")  # a slow run-down, seen at once
+    try:
+        _zero_only_wind_off(live)
+    finally:
+        live.close()
+
+
+def _zero_only_wind_off(live):
     wait_device_time(live.acq, 1.2, 20)
-    live.post("/api/live/setpoint", {"actuator": "fan", "value": 0.5})
+    live.post("/api/live/setpoint", {"actuator": "fan", "value": 0.8})
     resp = live.post("/api/live/zero")
     assert resp.status_code == 409 and "wind-off zero" in resp.get_json()["error"]
+    wait_device_time(live.acq, 40.0, 60)  # four time constants: the stream is up to speed
     live.post("/api/live/stop")
+    running_down = live.post("/api/live/zero")  # the fan is set to stop but the air still moves
+    assert running_down.status_code == 409 and "still moving" in running_down.get_json()["error"]
+    wait_device_time(live.acq, 80.0, 120)  # the fan has run down (8 time constants)
     assert live.post("/api/live/zero").status_code == 200
     assert live.acq.reducer.calibration is not None
 

@@ -278,6 +278,12 @@ class Station(Display):
         if fan is not None and self.acq.setpoints.get(fan.name, fan.safe) != fan.safe:
             raise AcquisitionError(f"the fan is set to {self.acq.setpoints[fan.name]:g}: a wind-off zero needs it at "
                                    f"its safe value {fan.safe:g} and the flow stopped")
+        block = self.acq.recent(1.0)
+        if block is not None and block.n_scans >= 2:  # the fan may be set to stop and still be running down
+            reduced = self.acq.reducer.reduce(block, alpha_rad=self.acq.alpha_rad)
+            if np.count_nonzero(reduced.scan_flags & ScanFlag.NO_FLOW) * 2 < reduced.n_scans:
+                raise AcquisitionError(f"the air is still moving (q ≈ {np.nanmean(reduced.q_pa):.1f} Pa): wait for the "
+                                       "fan to stop before a wind-off zero")
         self.acq.zero(1.0, note="wind-off zero from the dashboard")
         self.notify("wind-off zero taken")
 
