@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 import os
-import re
 import shutil
 import signal
 import subprocess
@@ -153,6 +152,8 @@ def test_the_page_runs_the_rig_and_the_stop_reaches_the_board(browser, bench):
         page.until("() => /^stop/i.test(document.getElementById('message').textContent)")
         page.until("() => document.getElementById('st-flow').textContent === 'NO FLOW'", 180)  # the fan ran down
         assert "safe value" in page.text("#now-fan") and "safe value" in page.text("#now-alpha")
+        seen = page.page.evaluate("() => window.taprig.frames")
+        page.until(f"() => window.taprig.frames > {seen} + 60")  # the last of the air has stopped too
         page.page.click("#b-zero")
         page.until("() => document.getElementById('message').textContent === 'wind-off zero taken'")
         page.shot("live-after-stop")
@@ -245,8 +246,9 @@ def test_replay_in_the_page_shows_the_recorded_numbers(browser, bench, tmp_path)
         cells = page.page.eval_on_selector_all("#points tbody tr td:nth-child(5)", "tds => tds.map(t => t.textContent)")
         assert len(cells) == len(recorded) == 1
         best = recorded[0]["corrected"]
-        value = float(cells[0].split(" ± ")[0])
-        assert abs(value - best["cl"]) < 0.01
+        value = cells[0].split(" ± ")[0]
+        digits = len(value.split(".")[1]) if "." in value else 0
+        assert abs(float(value) - best["cl"]) <= 0.5 * 10 ** -digits + 1e-12  # as recorded, to the digits shown
         page.page.select_option("#pb-speed", "0")
         page.page.click("#pb-play")
         page.until("() => document.getElementById('pb-pos').textContent.includes('(end)')", 180)
@@ -267,8 +269,8 @@ def test_a_venturi_bench_runs_from_the_page(browser, tmp_path):
         assert "venturi" in page.text("#cp-title")
         set_actuator(page, "blower", 0.7)
         page.until("() => document.getElementById('st-flow').textContent === 'FLOW'", 180)
-        page.until("() => /g\\/s/.test(document.getElementById('n-mdot').textContent)")
-        assert re.search(r"\d", page.text("#n-qv"))
+        page.until("() => /g\\/s/.test(document.getElementById('n-mdot').textContent) && "
+                   "/L\\/s/.test(document.getElementById('n-qv').textContent)")
         page.shot("venturi")
         page.page.click("#stop")
         page.until("() => document.getElementById('st-flow').textContent === 'NO FLOW'", 180)

@@ -60,5 +60,5 @@ def run(args) -> int:
         station.close()
         acquisition.close()
     recorded = acquisition.writer
-    print(f"run ended; every actuator sent to its safe value" + (f"; last recording {recorded.path}" if recorded else ""))
+    print("run ended; every actuator sent to its safe value" + (f"; last recording {recorded.path}" if recorded else ""))
     return 0

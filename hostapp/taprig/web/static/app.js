@@ -264,8 +264,9 @@ function drawReadings(f, r) {
   const ven = r && r.venturi;
   document.querySelectorAll(".ven").forEach((e) => (e.hidden = rig.kind !== "venturi"));
   if (rig.kind === "venturi") {
-    setNum("n-mdot", ven ? fmtU([ven.mass_flow_kg_s * 1000, ven.u_mass_flow_kg_s === null ? null : ven.u_mass_flow_kg_s * 1000], "g/s") : null, why);
-    setNum("n-qv", ven && ven.volume_flow_m3_s !== null ? `${(ven.volume_flow_m3_s * 1000).toFixed(3)} L/s` : null, why);
+    const noRate = r && r.state === "flow" ? "no flow rate (see the flags)" : why;
+    setNum("n-mdot", ven && ven.mass_flow_kg_s !== null ? fmtU([ven.mass_flow_kg_s * 1000, ven.u_mass_flow_kg_s === null ? null : ven.u_mass_flow_kg_s * 1000], "g/s") : null, noRate);
+    setNum("n-qv", ven && ven.volume_flow_m3_s !== null ? fmtU([ven.volume_flow_m3_s * 1000, ven.u_mass_flow_kg_s === null ? null : ven.u_mass_flow_kg_s / ven.mass_flow_kg_s * ven.volume_flow_m3_s * 1000], "L/s at the room's density") : null, noRate);
   }
   const extra = [];
   if (c) extra.push(`coefficients: ${c.method}${c.walls ? ` (wall-corrected; α corrected ${fmt(c.alpha_corrected_deg)}°)` : ""}; trapezoid Cl ${fmt(c.plain_cl)}`);
