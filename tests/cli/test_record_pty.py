@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import os
+import signal
 import subprocess
 import sys
 from pathlib import Path
@@ -92,3 +93,20 @@ def test_a_run_that_never_started_leaves_no_file(tmp_path):
     out = tmp_path / "x.taprig"
     rec = taprig("record", "--rig", str(RIG), "--port", "/dev/taprig-no-such-port", "-o", str(out))
     assert rec.returncode == 1 and not out.exists()  # so the same command can be run again once fixed
+
+
+def test_info_on_a_session_being_recorded_says_so(tmp_path, sim_clean):
+    out = tmp_path / "live.taprig"
+    rec = subprocess.Popen([*TAPRIG, "record", "--rig", str(RIG), "--port", sim_clean, "--duration", "30",
+                            "--rate", "200", "--no-dashboard", "-o", str(out)],
+                           stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT)
+    try:
+        rec.stderr.readline()  # the first live line: the recording is under way (committed every 250 ms)
+        info = taprig("info", str(out))
+        assert info.returncode == 0, info.stderr
+        assert "being recorded now" in info.stdout and "not stopped cleanly" not in info.stdout
+    finally:
+        rec.send_signal(signal.SIGTERM)
+        rec.wait(30)
+    after = taprig("info", str(out))
+    assert "being recorded" not in after.stdout and "not stopped cleanly" not in after.stdout

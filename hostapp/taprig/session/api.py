@@ -165,6 +165,22 @@ def _duration_s(meta: dict[str, str], first_ns: int | None, last_ns: int | None,
         return (last_ns - start_ns) / 1e9
 
 
+#: A session without a stop time whose write-ahead log changed this recently [s] is taken as still being recorded
+#: (a recorder commits at least every 250 ms while data flows); older, it was not stopped cleanly.
+RECORDING_FRESH_S = 5.0
+
+
+def being_recorded(path: str | Path) -> bool:
+    """True if another process appears to be recording ``path`` now: its ``-wal`` file changed within
+    :data:`RECORDING_FRESH_S`. (A run that was killed leaves the ``-wal`` file, but it stops changing.)"""
+    import time
+
+    try:
+        return time.time() - Path(f"{path}-wal").stat().st_mtime < RECORDING_FRESH_S
+    except OSError:
+        return False
+
+
 def session_summary(reader: SessionReader, decoded: dict) -> dict:
     """Summary of a session from its reader and :func:`decode_all`'s result (see :meth:`Session.summary`)."""
     meta = reader.meta
@@ -176,6 +192,7 @@ def session_summary(reader: SessionReader, decoded: dict) -> dict:
         "path": str(reader.path), "format_version": int(meta.get("format_version", 0)),
         "software": meta.get("software"), "rig": meta.get("rig_id"), "rig_name": meta.get("rig_name"),
         "port": meta.get("port"), "started": meta.get("started_utc"), "stopped": meta.get("stopped_utc"),
+        "being_recorded": meta.get("stopped_utc") is None and being_recorded(reader.path),
         "duration_s": _duration_s(meta, first_ns, last_ns, session_start_ns(reader)),
         "chunks": n_chunks, "bytes": n_bytes, "scans": decoded["scans"], "frames": counters["frames"],
         "crc_errors": counters["crc_errors"], "framing_errors": counters["framing_errors"],

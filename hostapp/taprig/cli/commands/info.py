@@ -22,12 +22,18 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
+def _not_stopped(summary: dict) -> str:
+    if summary.get("being_recorded"):
+        return "(being recorded now: these counts are what was committed so far)"
+    return "(not stopped cleanly)"
+
+
 def _text(summary: dict) -> list[str]:
     lines = [
         f"session   {summary['path']}  (format {summary['format_version']}, {summary['software'] or 'unknown software'})",
         f"rig       {summary['rig']}  {summary['rig_name'] or ''}".rstrip(),
         f"port      {summary['port']}",
-        f"started   {summary['started']}   stopped {summary['stopped'] or '(not stopped cleanly)'}",
+        f"started   {summary['started']}   stopped {summary['stopped'] or _not_stopped(summary)}",
         f"duration  {summary['duration_s']:.1f} s   {summary['chunks']} chunks, {summary['bytes']:,} bytes",
         f"scans     {summary['scans']}   frames {summary['frames']}",
         f"errors    crc {summary['crc_errors']}  framing {summary['framing_errors']}  gaps {summary['gaps']}  "
