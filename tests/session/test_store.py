@@ -170,3 +170,41 @@ def test_a_slow_disk_holds_the_producer_back_and_loses_nothing(tmp_path):
 def test_a_directory_is_not_a_session_file(tmp_path):
     with pytest.raises(SessionError, match="is a directory; expected a session file"):
         SessionReader(tmp_path)
+
+
+def test_a_good_session_on_read_only_storage_is_read_not_called_damaged():
+    """A shared folder handed to a class: neither the file nor its folder may be written (SQLite cannot make its
+    shared-memory file there). Checked as a user without write access (root ignores permissions, so as root the
+    reader runs as nobody)."""
+    import shutil
+    import subprocess
+    import sys
+    import tempfile
+    from pathlib import Path
+
+    if os.name != "posix":
+        pytest.skip("POSIX permissions")
+    as_root = os.geteuid() == 0
+    if as_root and shutil.which("setpriv") is None:
+        pytest.skip("running as root without setpriv to drop the privileges")
+    share = Path(tempfile.mkdtemp(prefix="taprig-share-"))
+    try:
+        path = share / "class.taprig"
+        w = SessionWriter(path, {"rig_id": "r"})
+        w.append_chunk(b"\x00abc", 1)
+        w.close()
+        assert not Path(f"{path}-wal").exists()
+        path.chmod(0o444)
+        share.chmod(0o555)
+        code = ("import sys; from taprig.session.store import SessionReader\n"
+                "with SessionReader(sys.argv[1]) as r: print(r.meta['rig_id'], r.chunk_summary()[0])")
+        cmd = [sys.executable, "-c", code, str(path)]
+        if as_root:
+            cmd = ["setpriv", "--reuid=65534", "--regid=65534", "--clear-groups", *cmd]
+        done = subprocess.run(cmd, capture_output=True, text=True, timeout=60, cwd="/")
+        assert done.returncode == 0, done.stderr
+        assert done.stdout.split() == ["r", "1"]
+        assert not Path(f"{path}-wal").exists() and not Path(f"{path}-shm").exists()  # nothing written there
+    finally:
+        share.chmod(0o755)
+        shutil.rmtree(share)

@@ -65,14 +65,28 @@ class Entry:
 
 def _connect(path: Path, readonly: bool) -> sqlite3.Connection:
     """Open a connection; a reader opens read-write when it may (so SQLite can recover the WAL of a run that
-    was killed) and falls back to read-only (a file on a read-only share), but never writes a row."""
+    was killed), else read-only, else, on read-only storage (a shared folder handed to a class) where SQLite
+    cannot make its shared-memory file, as an immutable file; it never writes a row."""
     con = None
     if readonly:
-        try:
-            con = sqlite3.connect(f"{path.resolve().as_uri()}?mode=rw", uri=True, check_same_thread=False)
-            con.execute("SELECT count(*) FROM sqlite_master").fetchone()
-        except sqlite3.OperationalError:
-            con = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True, check_same_thread=False)
+        uri = path.resolve().as_uri()
+        wal = Path(f"{path}-wal").exists()
+        attempts = ["mode=rw", "mode=ro"] + ([] if wal else ["mode=ro&immutable=1"])
+        for query in attempts:
+            try:
+                con = sqlite3.connect(f"{uri}?{query}", uri=True, check_same_thread=False)
+                con.execute("SELECT count(*) FROM sqlite_master").fetchone()
+                break
+            except sqlite3.OperationalError as exc:
+                if con is not None:
+                    con.close()
+                con, error = None, exc
+        if con is None:
+            if wal:  # immutable would ignore the log: what it holds would silently be missing
+                raise sqlite3.OperationalError(
+                    f"cannot be opened where it is ({error}), and its write-ahead log ({path.name}-wal) was not "
+                    "merged into it: copy both files to a folder you may write to and read the copy") from error
+            raise error
     else:
         con = sqlite3.connect(str(path), check_same_thread=False, isolation_level=None)
     con.execute("PRAGMA busy_timeout = 5000")
