@@ -82,3 +82,23 @@ def test_a_sweep_without_flow_stops_and_says_why(tmp_path, capsys):
     captured = capsys.readouterr()
     assert code == 1 and "watchdog tripped" in captured.err and "check the fan" not in captured.err
     assert "lift slope" not in captured.out
+
+
+def test_an_unforeseen_error_still_ends_safe_and_closed(tmp_path, capsys, monkeypatch):
+    # A defect in the middle of a sweep: the one shutdown path runs before the "internal error" line (exit 3).
+    from taprig.cli.commands import sweep as sweep_command
+    from taprig.session.store import SessionReader
+
+    def broken(point):
+        raise RuntimeError("a defect while printing a row")
+
+    monkeypatch.setattr(sweep_command, "point_line", broken)
+    out = tmp_path / "s.taprig"
+    code = main(["sweep", "--rig", RIG, "--port", FAST, "--from-deg", "-2", "--to-deg", "4", "--settle", "0.3",
+                 "--average", "0.3", "--no-dashboard", "-o", str(out)])
+    assert code == 3 and "internal error" in capsys.readouterr().err
+    assert not (tmp_path / "s.taprig-wal").exists() and not (tmp_path / "s.taprig-shm").exists()
+    with SessionReader(out) as r:
+        shutdown = [e for e in r.events() if e.kind == "shutdown"]
+        assert r.meta["stop_reason"] == "internal error"
+    assert len(shutdown) == 1 and all(a["acknowledged"] for a in shutdown[0].data["actuators"])
