@@ -288,7 +288,8 @@ class SessionReader:
                 raise SessionError(f"{self.path}: not a taprig session file (missing tables {sorted(set(_TABLES) - tables)})")
             self.meta = dict(self._con.execute("SELECT key, value FROM meta"))
         except sqlite3.DatabaseError as exc:
-            raise SessionError(f"{self.path}: damaged or truncated session file ({exc})") from exc
+            raise SessionError(f"{self.path}: damaged or truncated session file ({exc}); `taprig recover "
+                               f"{self.path} -o NEW.taprig` copies what is intact into a new file") from exc
         if self.meta.get("format") != FORMAT_NAME:
             raise SessionError(f"{self.path}: not a taprig session file (format {self.meta.get('format')!r})")
         version = int(self.meta.get("format_version", "0"))
@@ -312,7 +313,8 @@ class SessionReader:
         try:
             return self._con.execute(sql, args).fetchall()
         except sqlite3.DatabaseError as exc:
-            raise SessionError(f"{self.path}: damaged session file ({exc})") from exc
+            raise SessionError(f"{self.path}: damaged session file ({exc}); `taprig recover {self.path} -o "
+                               "NEW.taprig` copies what is intact into a new file") from exc
 
     def chunks(self, batch: int = 2000) -> Iterator[Chunk]:
         """Yield the recorded chunks in arrival order, reading ``batch`` rows at a time."""
