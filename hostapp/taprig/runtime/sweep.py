@@ -9,12 +9,13 @@ from __future__ import annotations
 import math
 import threading
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Callable, Sequence
 
 from taprig.protocol import ActuatorKind
 from taprig.reduce import ReducedMean
 from taprig.reduce.polar import LiftCurve, lift_curve
+from taprig.reduce.steady import Steadiness, SteadyCriteria, block_steadiness
 from taprig.runtime.acquisition import Acquisition, AcquisitionError
 
 
@@ -60,10 +61,28 @@ def wait_device_time(acq: Acquisition, seconds: float, timeout_s: float) -> None
     raise AcquisitionError(f"no data for {timeout_s:g} s while waiting for the flow to settle (link {acq.link_state})")
 
 
+def wait_steady(acq: Acquisition, criteria: SteadyCriteria, timeout_s: float = 30.0) -> Steadiness:
+    """Wait until q and the coefficients of the newest ``criteria.hold_s`` are steady (:mod:`taprig.reduce.steady`);
+    AcquisitionError saying what moved when ``criteria.timeout_s`` of device time pass first."""
+    waited, step = 0.0, criteria.hold_s / criteria.windows
+    while True:
+        block = acq.recent(criteria.hold_s + 1.0)  # whole blocks: ask for more, the detector keeps the last hold_s
+        verdict = block_steadiness(acq.reducer.reduce(block, alpha_rad=acq.alpha_rad), criteria) \
+            if block is not None and block.n_scans >= 2 else Steadiness(False, reason="no data yet")
+        if verdict.steady:
+            return verdict
+        if waited >= criteria.timeout_s:
+            raise AcquisitionError(f"the flow did not settle within {criteria.timeout_s:g} s: {verdict.reason}")
+        wait_device_time(acq, step, timeout_s)
+        waited += step
+
+
 def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1.0, average_s: float = 1.0,
               timeout_s: float = 30.0, on_point: Callable[[SweepPoint], None] | None = None,
-              stop: threading.Event | None = None) -> list[SweepPoint]:
-    """Step the angle actuator through ``angles_rad``, capturing a point of ``average_s`` after ``settle_s`` each.
+              stop: threading.Event | None = None,
+              steady: SteadyCriteria | None = SteadyCriteria()) -> list[SweepPoint]:
+    """Step the angle actuator through ``angles_rad``, capturing a point of ``average_s`` after ``settle_s`` each,
+    once q and the coefficients are steady over at least ``average_s`` (``steady=None``: no such wait).
 
     ``stop``, when set (by the operator, from another thread), ends the sweep before its next step; the points
     taken so far are returned and nothing more is sent.
@@ -84,6 +103,8 @@ def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1
         acq.set_actuator(name, float(alpha))
         wait_device_time(acq, settle_s + average_s, timeout_s)
         acq.check_flow(average_s)  # a sweep of points without flow would be numbers without meaning
+        if steady is not None:
+            wait_steady(acq, replace(steady, hold_s=max(steady.hold_s, average_s)), timeout_s)
         mean = acq.capture_point(f"alpha {math.degrees(alpha):+.1f} deg", average_s)
         point = SweepPoint(float(alpha), mean)
         points.append(point)
