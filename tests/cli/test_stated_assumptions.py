@@ -41,3 +41,10 @@ def test_live_line_says_no_flow_and_the_static_in_force():
     for word in ("V ", "Re ", "Cl", "nan"):
         assert word not in line
     assert "p∞ = room − 1.1q (suction)" in line
+
+
+def test_check_predicts_the_uncertainties_at_the_design_speed_and_warns(capsys):
+    assert main(["check", str(RIGS / "water-hydrofoil.toml"), str(RIGS / "cylinder.toml")]) == 0
+    out = capsys.readouterr().out
+    assert "predicts at the design speed 0.4 m/s" in out and "predicts at the design speed 15 m/s" in out
+    assert "WARNING: u(q)" in out and "the q sensor is too wide" in out  # the water rig's ±5 kPa for 80 Pa

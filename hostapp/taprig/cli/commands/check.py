@@ -94,6 +94,27 @@ def _assumptions(rig: Rig) -> tuple[str, ...]:
         return (f"cannot reduce: {exc}",)
 
 
+def _prediction_lines(rig: Rig) -> list[str]:
+    """u(q), u(Cp), u(Cl) at the rig's design speed (taprig.sim.predict), with a warning for each shortfall."""
+    from taprig.reduce import ReduceError
+    from taprig.sim.predict import predict
+
+    try:
+        p = predict(rig)
+    except ReduceError as exc:
+        return [f"predicts: {exc}"]
+    def pair(nominal: float, zeroed: float, fmt: str) -> str:
+        return f"{nominal:{fmt}} nominal, {zeroed:{fmt}} after a wind-off zero"
+    lines = [f"predicts at the design speed {p.speed:g} m/s (α {math.degrees(p.alpha_rad):g}°, datasheet bands, "
+             f"standard uncertainties): q {p.q:.4g} Pa, u(q) {pair(p.u_q, p.u_q_zeroed, '.3g')} Pa"]
+    if math.isfinite(p.u_cp_zeroed):
+        lines.append(f"  largest u(Cp) {pair(p.u_cp, p.u_cp_zeroed, '.3f')}")
+    if math.isfinite(p.u_cl_zeroed):
+        lines.append(f"  u(Cl) {pair(p.u_cl, p.u_cl_zeroed, '.3f')}")
+    lines += [f"WARNING: {w}" for w in p.warnings]
+    return lines
+
+
 def summary(rig: Rig) -> str:
     """The text ``taprig check`` prints for a valid rig."""
     ref = rig.reference
@@ -111,6 +132,7 @@ def summary(rig: Rig) -> str:
     lines += _tap_lines(rig)
     lines.append("references: " + (", ".join(refs) or "none"))
     lines += [f"assumes: {sentence}" for sentence in _assumptions(rig)]
+    lines += _prediction_lines(rig)
     lines.append(_geometry_line(rig))
     if rig.balance is not None:
         lines.append("balance: " + ", ".join(f"{k} = {getattr(rig.balance, k)}" for k in ("lift", "drag") if getattr(rig.balance, k)))
