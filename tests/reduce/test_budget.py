@@ -200,7 +200,7 @@ def test_monte_carlo_of_the_whole_chain_agrees_with_the_analytic_budget(state, a
     plain = np.array([m.plain.cl for m in means])
     shape = np.array([m.shape.cl for m in means])
     q = np.array([m.q_pa for m in means])
-    u_plain = np.mean([m.plain.u_cl for m in means])
+    u_plain = np.mean([math.sqrt(m.plain.u_cl**2 - m.plain.integration_u_cl**2) for m in means])  # measurement part
     u_shape = np.mean([math.sqrt(m.shape.u_cl**2 - m.shape.integration_u_cl**2) for m in means])  # measurement part
     u_q = np.mean([m.u_q_pa for m in means])
     assert np.std(plain, ddof=1) == pytest.approx(u_plain, rel=0.10)
