@@ -80,9 +80,10 @@ def wait_steady(acq: Acquisition, criteria: SteadyCriteria, timeout_s: float = 3
 def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1.0, average_s: float = 1.0,
               timeout_s: float = 30.0, on_point: Callable[[SweepPoint], None] | None = None,
               stop: threading.Event | None = None,
-              steady: SteadyCriteria | None = SteadyCriteria()) -> list[SweepPoint]:
+              steady: SteadyCriteria | None = None) -> list[SweepPoint]:
     """Step the angle actuator through ``angles_rad``, capturing a point of ``average_s`` after ``settle_s`` each,
-    once q and the coefficients are steady over at least ``average_s`` (``steady=None``: no such wait).
+    and with ``steady`` (``taprig sweep`` passes the default criteria) only once q and the coefficients are steady
+    over at least ``average_s``.
 
     ``stop``, when set (by the operator, from another thread), ends the sweep before its next step; the points
     taken so far are returned and nothing more is sent.

@@ -199,6 +199,7 @@ class _SweepRun:
         from taprig.cli.ending import emit
         from taprig.cli.live import follow
         from taprig.runtime.acquisition import AcquisitionError
+        from taprig.reduce.steady import SteadyCriteria
         from taprig.runtime.sweep import run_sweep, wait_device_time
 
         args, acq = self.args, self.acq
@@ -211,7 +212,8 @@ class _SweepRun:
             wait_device_time(acq, args.spin_up, 30 + args.spin_up)
             acq.check_flow(min(1.0, args.average))
             emit(f"\n{HEADER}")
-            run_sweep(acq, self.targets, settle_s=args.settle, average_s=args.average, on_point=self.on_point)
+            run_sweep(acq, self.targets, settle_s=args.settle, average_s=args.average, on_point=self.on_point,
+                      steady=SteadyCriteria())
         except AcquisitionError as exc:
             self.failure = str(exc)
             return
