@@ -280,10 +280,17 @@ def test_a_different_board_on_the_path_is_not_taken_for_the_lost_one(tmp_path, p
     stranger_pty = ptys()
     alias.unlink()
     alias.symlink_to(stranger_pty.path)
-    stranger = devices(stranger_pty, description=make_description(uid="OTHER-BOARD"))
-    wait_until(lambda: any("different board" in e.detail for e in events.kinds(LinkEventKind.RETRY)),
-               what="a retry naming the wrong board")
+    stranger = devices(stranger_pty, start=False, description=make_description(uid="OTHER-BOARD"))
+    stranger._streaming = True  # already streaming when it appears: its bytes must not reach the record
+    received_before = link.bytes_received
+    chunks = []
+    link.subscribe(on_chunk=lambda chunk, host_ns, items: chunks.append(items))
+    stranger.start()
+    wait_until(lambda: sum("different board" in e.detail for e in events.kinds(LinkEventKind.RETRY)) >= 2,
+               what="retries naming the wrong board")
     assert not events.kinds(LinkEventKind.RESTORED)
+    assert chunks == [] and link.bytes_received == received_before and link.counters.frames == device.frames_sent
+    assert link.other_board_bytes > 0
 
     stranger.stop()
     right_pty = ptys()
@@ -365,3 +372,31 @@ def test_fake_device_helper_round_trip(ptys):
     finally:
         device.stop()
 
+
+
+def test_a_reboot_during_an_outage_is_a_reset_even_when_its_boot_frame_is_not_seen(tmp_path, ptys, devices, links):
+    # Reopening the port flushes what the board sent while the host was away, its BOOT frame among them: the
+    # sequence going back after the outage is then the only sign, and it is counted as a reset, not as late frames.
+    first = ptys()
+    alias = tmp_path / "ttyBOARD"
+    alias.symlink_to(first.path)
+    device = devices(first)
+    link = links(str(alias))
+    events = Events()
+    link.subscribe(on_event=events)
+    link.open()
+    first.release_slave()
+    _stream_then_unplug(link, device)
+    events.wait(LinkEventKind.LOST)
+    second = ptys()
+    alias.unlink()
+    alias.symlink_to(second.path)
+    reborn = devices(second)  # seq starts at 0 again, no BOOT frame seen
+    events.wait(LinkEventKind.RESTORED)
+    link.start_stream(1000.0)
+    wait_until(lambda: link.counters.frames >= device.frames_sent + 10, what="10 frames after the replug")
+    link.stop_stream()
+    wait_until(lambda: link.counters.frames == device.frames_sent + reborn.frames_sent, what="every frame counted")
+    counters = link.counters
+    assert (counters.resets, counters.late, counters.gaps, counters.duplicates) == (1, 0, 0, 0)
+    assert len(events.kinds(LinkEventKind.RESET)) == 1

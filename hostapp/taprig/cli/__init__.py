@@ -116,7 +116,8 @@ def scan_rate(text: str) -> float:
     """An argparse type: a scan rate > 0 [Hz] that fits START's f32 field (the board checks its own limits)."""
     value = _number(text)
     if not (0 < value <= _F32_MAX):
-        raise argparse.ArgumentTypeError(f"expected a scan rate > 0 Hz, got {text!r}")
+        raise argparse.ArgumentTypeError(f"expected a scan rate > 0 Hz and at most {_F32_MAX:.3g} Hz (START carries "
+                                         f"it as a 32-bit float; the board states its own limit), got {text!r}")
     return value
 
 

@@ -54,6 +54,15 @@ def live_line(state: LiveState) -> str:
     return "  ".join(parts)
 
 
+def lost_line(acquisition) -> str | None:
+    """``link lost for 12 s: reconnecting …`` while the link is down, else None."""
+    since = acquisition.link.lost_since_ns
+    if since is None:
+        return None
+    return (f"link lost for {(time.time_ns() - since) / 1e9:.0f} s: reconnecting to {acquisition.link.port_name} "
+            f"(the same board, by path or USB serial number; Ctrl-C ends the run)")
+
+
 def follow(acquisition, duration: float | None = None, quiet: bool = False) -> None:
     """Print the live line about once a second (overwritten in place on a terminal) for ``duration`` seconds or
     until the run is asked to stop (a signal: ``Acquisition.stop_requested``) or Ctrl-C; says once when the board
@@ -72,10 +81,14 @@ def follow(acquisition, duration: float | None = None, quiet: bool = False) -> N
                 halt_told = True
                 emit(("\n" if tty and not quiet else "") + f"taprig: {acquisition.halt_reason} (recording goes on)",
                      sys.stderr)
-            if state is None or quiet or time.monotonic() - last_print < 1.0:
+            if acquisition.failure:
+                break  # recording or reduction stopped: the run ends now and its summary says why
+            lost = lost_line(acquisition)
+            if (state is None and lost is None) or quiet or time.monotonic() - last_print < 1.0:
                 continue
             last_print = time.monotonic()
-            emit(("\r" if tty else "") + live_line(state), sys.stderr, end="" if tty else "\n", flush=True)
+            text = lost if lost is not None else live_line(state)
+            emit(("\r" if tty else "") + text, sys.stderr, end="" if tty else "\n", flush=True)
     except KeyboardInterrupt:
         pass
     finally:

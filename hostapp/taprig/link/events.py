@@ -21,6 +21,7 @@ class LinkEventKind(Enum):
     RETRY = "retry"                # one reconnect attempt failed; detail says why and when the next one is
     RESTORED = "restored"          # the same board is back (uid confirmed); ``gap`` spans the outage
     CLOSED = "closed"              # the link was stopped by its owner
+    RESET = "reset"                # the board rebooted (a frame with the BOOT flag, or its sequence restarted)
 
 
 @dataclass(frozen=True)

@@ -96,6 +96,8 @@ class Link:
         self.meter = ByteRateMeter()
         self.gaps: list[LinkGap] = []
         self.heartbeats_sent = 0
+        #: Bytes read from another board (a different uid) on a reconnect attempt: never decoded nor recorded.
+        self.other_board_bytes = 0
         self._port: serial.SerialBase | None = None
         self._identity = None
         self._uid: str | None = None
@@ -174,6 +176,12 @@ class Link:
         return any(thread.is_alive() for thread in self._threads)
 
     @property
+    def lost_since_ns(self) -> int | None:
+        """Host time [ns] the link was lost, while it is lost (reconnecting), and after :meth:`close` if it ended
+        lost; None while it is up or if it never went down."""
+        return self._lost_at_ns
+
+    @property
     def bytes_received(self) -> int:
         """Bytes read from the device since the link was made."""
         return self.meter.total
@@ -227,8 +235,15 @@ class Link:
         for thread in self._threads:
             thread.start()
 
-    def _handshake(self, port: serial.SerialBase) -> Description:
-        """Settle, then ``DESCRIBE`` every ``describe_interval_s`` until a ``DESCRIPTION`` arrives or time is up."""
+    def _handshake(self, port: serial.SerialBase, held: list | None = None) -> Description:
+        """Settle, then ``DESCRIBE`` every ``describe_interval_s`` until a ``DESCRIPTION`` arrives or time is up.
+
+        With ``held`` (a reconnect attempt), what arrives is decoded by a probe decoder of its own and kept in
+        ``held`` as (host time, bytes); nothing reaches the link's decoder or its subscribers until the board is
+        confirmed as the same one (:meth:`_reopen`), so another board's bytes are never recorded.
+        """
+        if held is not None:
+            return self._probe(port, held)
         with self._cond:
             seen_before = self._descriptions_seen
             logs_before = self._log_count
@@ -254,6 +269,37 @@ class Link:
                 if len(received) < 4096:
                     received += chunk[: 4096 - len(received)]
                 self._ingest(chunk)
+
+    def _probe(self, port: serial.SerialBase, held: list) -> Description:
+        probe = StreamDecoder(self.decoder.description)
+        start = time.monotonic()
+        deadline = start + self.handshake_timeout_s
+        next_describe = start + self.settle_s
+        held_bytes = 0
+        while True:
+            now = time.monotonic()
+            if now >= deadline:
+                raise HandshakeTimeoutError(f"no DESCRIPTION from {self.port_name} within "
+                                            f"{self.handshake_timeout_s:g} s")
+            if self._stop.is_set():
+                raise LinkDownError(f"link to {self.port_name} closed during the handshake")
+            if now >= next_describe:
+                self._write(port, Describe(req=self._new_req()))
+                next_describe = now + self.describe_interval_s
+            chunk = read_available(port)
+            if not chunk:
+                continue
+            if held_bytes < self.PROBE_HOLD_BYTES:  # beyond that, what came before the DESCRIPTION is not kept
+                held.append((time.time_ns(), chunk))
+                held_bytes += len(chunk)
+            for item in probe.feed(chunk):
+                if isinstance(item, Description) and item.uid:
+                    if held_bytes >= self.PROBE_HOLD_BYTES:
+                        held[:] = [(time.time_ns(), chunk)]
+                    return self._check_version(item)
+
+    #: Bytes a reconnect attempt holds while it waits for the board's DESCRIPTION.
+    PROBE_HOLD_BYTES = 1 << 20
 
     def _check_version(self, description: Description) -> Description:
         if description.proto_major != PROTO_MAJOR:
@@ -285,7 +331,11 @@ class Link:
     def _ingest(self, chunk: bytes) -> None:
         """Decode one chunk, note descriptions, replies and logs, and hand it to the subscribers."""
         host_time_ns = time.time_ns()
+        self._deliver(chunk, host_time_ns)
+
+    def _deliver(self, chunk: bytes, host_time_ns: int) -> None:
         self.meter.add(len(chunk))
+        resets = self.decoder.counters.resets
         items = self.decoder.feed(chunk)
         noted = [item for item in items if isinstance(item, (Description, Reply, Log))]
         if noted:
@@ -305,6 +355,10 @@ class Link:
                 subscriber(chunk, host_time_ns, items)
             except Exception:  # the recorder and the viewer must not be able to stop the reader
                 log.exception("link chunk subscriber failed")
+        now_resets = self.decoder.counters.resets
+        if now_resets > resets and self._threads:  # the boot seen while opening is no event: it is the connection
+            self._emit(LinkEventKind.RESET, f"the board on {self.port_name} restarted (resets {now_resets})",
+                       host_time_ns=host_time_ns)
 
     def _run_reader(self) -> None:
         while not self._stop.is_set():
@@ -357,15 +411,23 @@ class Link:
     def _reopen(self, path: str) -> serial.SerialBase:
         port = self._opener(path)
         if not self._handshake_enabled:
+            self.decoder.link_restarted()
             return port
+        held: list[tuple[int, bytes]] = []
         try:
-            description = self._handshake(port)
+            description = self._handshake(port, held)
         except BaseException:
             self._close_quietly(port)
             raise
         if self._uid is not None and description.uid != self._uid:
             self._close_quietly(port)
-            raise LinkError(f"a different board is there (uid {description.uid}, expected {self._uid})")
+            self.other_board_bytes += sum(len(c) for _, c in held)
+            raise LinkError(f"a different board is there (uid {description.uid}, expected {self._uid}); "
+                            "its data is not recorded")
+        # The same board: what it sent during the handshake joins the record, as if read now.
+        self.decoder.link_restarted()
+        for host_ns, chunk in held:
+            self._deliver(chunk, host_ns)
         return port
 
     def _restored(self, port: serial.SerialBase, path: str) -> bool:
@@ -375,6 +437,7 @@ class Link:
                 return False
             self._port = port
         gap = LinkGap(self._lost_at_ns or time.time_ns(), time.time_ns())
+        self._lost_at_ns = None
         self.gaps.append(gap)
         moved = "" if path == self.port_name else f" (was {self.port_name})"
         self.port_name = path

@@ -14,7 +14,7 @@ from dataclasses import asdict, dataclass
 import serial
 from serial.tools import list_ports
 
-from taprig.link.errors import open_error
+from taprig.link.errors import LinkError, open_error
 
 #: Bytes drained into one chunk at most; large enough that a full-speed stream is framed in bulk.
 CHUNK_LIMIT = 1 << 18
@@ -135,7 +135,11 @@ def open_port(port_or_url: str, *, baudrate: int = 115200, exclusive: bool = Tru
         port = serial.serial_for_url(port_or_url, do_not_open=True)
     except (ValueError, serial.SerialException) as exc:
         raise open_error(port_or_url, exc) from None
-    port.baudrate = baudrate
+    try:
+        port.baudrate = baudrate
+    except (ValueError, OverflowError):
+        raise LinkError(f"{port_or_url}: baud rate {baudrate} is not a rate this port can be set to "
+                        "(check link.baud in the rig file)") from None
     port.timeout = timeout
     port.write_timeout = write_timeout
     if exclusive and hasattr(port, "exclusive"):
@@ -149,6 +153,9 @@ def open_port(port_or_url: str, *, baudrate: int = 115200, exclusive: bool = Tru
         port.rts = False
     try:
         port.open()
+    except OverflowError:  # a line rate the driver cannot even represent
+        raise LinkError(f"{port_or_url}: baud rate {baudrate} is beyond what a serial port can be set to "
+                        "(check link.baud in the rig file)") from None
     except (OSError, ValueError, serial.SerialException) as exc:
         raise open_error(port_or_url, exc) from None
     return port

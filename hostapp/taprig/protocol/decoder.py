@@ -2,7 +2,7 @@
 
 A decoder is a plain object fed chunks of bytes as they arrive, split anywhere. It keeps only the bytes after the
 last delimiter between calls; each complete frame goes through the checks of §1 (length, COBS, size, CRC, header
-length), then the sequence accounting, then its type's body decoder. It never raises on bad bytes.
+length), then the sequence accounting, then its type's body decoder. It never raises, whatever the input.
 """
 
 from __future__ import annotations
@@ -24,6 +24,8 @@ _NOT_CACHED = object()
 #: which frame types each kind of receiver interprets (PROTOCOL.md §1: a frame of the other direction is unknown)
 _RECEIVERS = {"host": lambda t: 0 < t < 0x80, "device": lambda t: t > 0x80, "any": lambda t: True}
 _LAYOUT_CACHE_LIMIT = 256
+#: Unwrapped device times [µs] and scan indices stay below this, so times in ns and indices fit int64 with room.
+_UNWRAP_LIMIT = 1 << 52
 
 
 @dataclass
@@ -80,6 +82,15 @@ class StreamDecoder:
         self._time_ref: tuple[int, int] | None = None
         self._pending: list[tuple] = []
         self._pending_layout: SampleLayout | None = None
+        self._after_boot = False  # a BOOT frame was seen: the next stream starts at scan 0
+        self._after_outage = False  # the link was down: a sequence that went back means the board rebooted
+        self._late_frame = False
+
+    def link_restarted(self) -> None:
+        """The link was down and is back (a reconnect): the frames that follow come from the same board, which
+        may have rebooted meanwhile with its boot frame unseen. If the next frame's ``seq`` is behind the last
+        one seen, that is counted as a reset (sequence and scan accounting restart), not as late frames."""
+        self._after_outage = True
 
     @property
     def counters(self) -> Counters:
@@ -109,8 +120,17 @@ class StreamDecoder:
         items: list = []
         for part in parts:
             if part:
-                self._frame(part, items)
-        self._flush(items)
+                try:
+                    self._frame(part, items)
+                except Exception:  # never raise, whatever the input: a frame no check foresaw is undecodable
+                    counters.undecodable += 1
+                    self._pending = []
+                    self._scan_next = self._time_ref = None
+        try:
+            self._flush(items)
+        except Exception:
+            counters.undecodable += 1
+            self._pending = []
         if len(tail) > MAX_ENCODED:
             # counted now, skipped up to the next delimiter: the carry never grows past one legal frame
             counters.oversize += 1
@@ -152,25 +172,34 @@ class StreamDecoder:
     def _sequence(self, seq: int, flags: int) -> bool:
         """Count gaps, duplicates, late frames and resets; return False for a duplicate (not delivered)."""
         counters = self._counters
+        after_outage, self._after_outage = self._after_outage, False
+        self._late_frame = False
         if flags & FLAG_BOOT:
-            counters.resets += 1
-            self._scan_next = None
-            self._time_ref = None
+            self._restart_stream()
         elif self._seq_next is not None:
             if seq == self._seq_prev:
                 counters.duplicates += 1
                 return False
             ahead = (seq - self._seq_next) & _MASK32
-            if ahead > _HALF:
+            if ahead > _HALF and after_outage:
+                self._restart_stream()  # across an outage the boot frame can be lost: the sequence went back
+            elif ahead > _HALF:
                 counters.late += 1
+                self._late_frame = True
                 self._seq_prev = seq
                 return True
-            if ahead:
+            elif ahead:
                 counters.gaps += 1
                 counters.frames_lost += ahead
         self._seq_prev = seq
         self._seq_next = (seq + 1) & _MASK32
         return True
+
+    def _restart_stream(self) -> None:
+        self._counters.resets += 1
+        self._scan_next = None
+        self._time_ref = None
+        self._after_boot = True
 
     def _samples(self, raw: bytes, items: list) -> None:
         counters = self._counters
@@ -210,14 +239,23 @@ class StreamDecoder:
     def _scan_start(self, first_scan: int, n_scans: int) -> int:
         """Return the unwrapped index of a block's first scan; count scans lost before it."""
         expected = self._scan_next
+        after_boot, self._after_boot = self._after_boot, False
         if expected is None or (first_scan == 0 and expected & _MASK32):
             index = first_scan  # first block seen, or the first block after a START
+            if after_boot:  # a stream after a boot starts at scan 0: those before this block were lost
+                self._counters.scans_lost += first_scan
         else:
             ahead = (first_scan - expected) & _MASK32
-            if ahead > _HALF:
+            if ahead > _HALF and self._late_frame:
                 return expected - (_U32 - ahead)  # a late block: the expectation stays
-            self._counters.scans_lost += ahead
-            index = expected + ahead
+            if ahead > _HALF:  # in sequence, yet the scan index went back: a new START, its first frames lost
+                self._counters.scans_lost += first_scan
+                index = first_scan
+            else:
+                self._counters.scans_lost += ahead
+                index = expected + ahead
+        if index + n_scans > _UNWRAP_LIMIT:
+            index = first_scan  # an unwrapped index this large is not a real stream: start the count again
         self._scan_next = index + n_scans
         return index
 
@@ -230,9 +268,11 @@ class StreamDecoder:
         step = (t_us - raw_ref) & _MASK32
         if step < _HALF:
             unwrapped = unwrapped_ref + step
+            if unwrapped > _UNWRAP_LIMIT:  # ~146 000 years of µs: no real clock; restart so ns fit in int64
+                unwrapped = t_us
             self._time_ref = (t_us, unwrapped)
             return unwrapped
-        return unwrapped_ref - (_U32 - step)
+        return max(0, unwrapped_ref - (_U32 - step))
 
     def _flush(self, items: list) -> None:
         """Emit the pending ``SAMPLES`` frames as one :class:`RawBlock`."""

@@ -8,6 +8,8 @@ from __future__ import annotations
 
 import csv
 import io
+import os
+import stat
 import tomllib
 from collections.abc import Mapping
 from pathlib import Path
@@ -43,14 +45,39 @@ def read_text_file(path: Path, what: str, formats: str) -> str:
     happen to decode (TOML and JSON forbid it in a document; an SQLite session starts with one).
     """
     try:
-        text = path.read_text(encoding="utf-8")
-    except UnicodeDecodeError:
-        text = "\x00"
+        data = read_limited(path, what)
     except OSError as exc:
-        raise RigError(str(path), [RigIssue("", f"cannot read the {what}: {exc}")]) from None
-    if "\x00" in text:
+        raise RigError(str(path), [RigIssue("", f"cannot read the {what}: {exc.strerror or exc}")]) from None
+    except ValueError as exc:
+        raise RigError(str(path), [RigIssue("", str(exc))]) from None
+    if b"\x00" in data:
         raise WrongKindOfFile(str(path), f"is not a text {formats} {what} (a session? try taprig info)")
-    return text
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        printable = sum(32 <= b < 127 or b in b"\t\r\n" for b in data[:4096])
+        if printable < 0.9 * min(len(data), 4096):  # mostly not text: a binary file
+            raise WrongKindOfFile(str(path), f"is not a text {formats} {what} (a session? try taprig info)") from None
+        raise RigError(str(path), [RigIssue("", f"is not UTF-8 text (byte 0x{data[exc.start]:02X} at offset "
+                                                f"{exc.start}); save the {what} as UTF-8")]) from None
+    return text.removeprefix("\ufeff")  # a byte-order mark some editors write is not part of the text
+
+
+#: The largest rig file, coordinate table or calibration read [bytes]: far above any real one.
+MAX_TEXT_BYTES = 16 * 2**20
+
+
+def read_limited(path: Path, what: str) -> bytes:
+    """The bytes of a regular file of at most :data:`MAX_TEXT_BYTES`; ValueError naming the file otherwise
+    (a device such as /dev/zero, a pipe, a huge file), OSError when it cannot be read."""
+    with open(path, "rb") as fh:
+        st = os.fstat(fh.fileno())
+        if not stat.S_ISREG(st.st_mode):
+            raise ValueError(f"the {what} {path} is not a regular file")
+        data = fh.read(MAX_TEXT_BYTES + 1)
+    if len(data) > MAX_TEXT_BYTES:
+        raise ValueError(f"the {what} {path} is larger than {MAX_TEXT_BYTES // 2**20} MiB; expected a small text file")
+    return data
 
 
 def _clean_loc(loc: tuple) -> tuple:
@@ -143,6 +170,8 @@ def _parse(text: str, source: str, attachments: Mapping[str, str] | None, checks
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise RigError(source, [RigIssue("", f"not valid TOML: {exc}")]) from None
+    except RecursionError:
+        raise RigError(source, [RigIssue("", "not a usable rig file: arrays or tables nested too deeply")]) from None
     places, issues = unroll(data, attachments)
     issues += _attach_coordinates(data, attachments)
     if issues:
@@ -170,11 +199,19 @@ def _named_files(text: str) -> list[str]:
     """File names a rig text refers to (the coordinate table, the tap table); [] if the text does not parse."""
     try:
         data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError:
+    except (tomllib.TOMLDecodeError, RecursionError):
         return []  # parse_rig reports the syntax error
     section = data.get("section", {})
     name = section.get("coordinates_file") if isinstance(section, dict) else None
     return [n for n in (name, tap_file_name(data)) if isinstance(n, str)]
+
+
+def _section_file(text: str) -> str | None:
+    try:
+        section = tomllib.loads(text).get("section", {})
+    except (tomllib.TOMLDecodeError, RecursionError):
+        return None
+    return section.get("coordinates_file") if isinstance(section, dict) else None
 
 
 def load_rig(path: str | Path) -> Rig:
@@ -202,7 +239,10 @@ def _read_rig_files(path: Path) -> tuple[str, dict[str, str]]:
     attachments = {}
     for name in _named_files(text):
         try:
-            attachments[name] = (path.parent / name).read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError):
+            attachments[name] = read_limited(path.parent / name, "file named by the rig").decode("utf-8")
+        except ValueError as exc:  # a device, a huge file, not UTF-8: say so, naming the file
+            key = COORDINATES_KEY if name == _section_file(text) else ""
+            raise RigError(str(path), [RigIssue(key, str(exc), name)]) from None
+        except OSError:
             continue  # parse_rig reports the missing attachment with its key
     return text, attachments

@@ -351,7 +351,7 @@ class Link(Frozen):
     """How to open and re-find the board."""
 
     port: str | None = None
-    baud: int = Field(115200, gt=0)
+    baud: int = Field(115200, gt=0, le=50_000_000)  # above any serial bridge made; beyond it a typo
     touch_control_lines: bool = Field(False, description="False leaves DTR/RTS alone (no reset on open)")
     serial_number: str | None = None
     vid_pid: str | None = Field(None, pattern=r"^[0-9A-Fa-f]{4}:[0-9A-Fa-f]{4}$")

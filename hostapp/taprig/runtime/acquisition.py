@@ -196,6 +196,7 @@ class Acquisition:
         self._last_state: DeviceState | None = None  # the board's previous STATUS state (reader thread)
         # An ending asked for (a signal, the operator): automated steps stop at their next check.
         self.stop_reason: str | None = None
+        self._reduction_failure: str | None = None
         self.stop_requested = threading.Event()
         self._shutdown_lock = threading.Lock()
         self._shutting_down = threading.Event()
@@ -527,18 +528,19 @@ class Acquisition:
 
     # -- the link's threads -------------------------------------------------------------------------------
     def _on_chunk(self, chunk: bytes, host_ns: int, items: list) -> None:
+        blocks = [item for item in items if isinstance(item, RawBlock)]
+        n_scans = sum(b.n_scans for b in blocks)
         writer = self.writer  # once: recording may be stopped from another thread meanwhile
         if writer is not None:
-            writer.append_chunk(chunk, host_ns)
+            writer.append_chunk(chunk, host_ns, n_scans)
         self._watch_safety(items, host_ns)  # before the scans are kept: no point may use scans after a halt
         if self.link_state in ("connected", "restored") and any(isinstance(i, Description) for i in items):
             self._schedule_resume()  # the board rebooted under a live link (a reset): it is idle and safe now
-        blocks = [item for item in items if isinstance(item, RawBlock)]
         if blocks:
             with self._window_lock:
                 for block in blocks:
                     self._window.add(block)
-            self.scans += sum(b.n_scans for b in blocks)
+            self.scans += n_scans
         try:
             self._work.put_nowait((host_ns, items))
         except queue.Full:
@@ -599,6 +601,10 @@ class Acquisition:
         self.last_log = "the board restarted: streaming resumed, actuators at safe values until set again"
 
     def _on_link_event(self, event: LinkEvent) -> None:
+        if event.kind is LinkEventKind.RESET:  # the board rebooted; the link itself stays up
+            if self.writer is not None:
+                self.writer.add_link_event(event.kind.value, event.detail or event.port, event.host_time_ns)
+            return
         self.link_state = event.kind.value
         if event.kind is LinkEventKind.LOST and not self._shutting_down.is_set():
             timeout = self._watchdog_s()
@@ -611,7 +617,28 @@ class Acquisition:
         if self.writer is not None and event.kind is not LinkEventKind.RETRY:
             self.writer.add_link_event(event.kind.value, event.detail or event.port, event.host_time_ns)
 
+    @property
+    def failure(self) -> str | None:
+        """Why the run cannot go on as asked, in plain words, or None: recording stopped (disk full, file
+        deleted, writer failed) or reduction stopped. A caller ends the run (or shows it) with this message."""
+        if self._reduction_failure is not None:
+            return self._reduction_failure
+        if self.writer is not None:
+            if self.writer.error is not None:
+                return self.writer.error
+            if not self.writer.alive:
+                return f"{self.writer.path}: recording stopped (the writer ended unexpectedly)"
+        return None
+
     def _run_reduction(self) -> None:
+        try:
+            self._reduce_loop()
+        except Exception as exc:  # the live numbers stop: say so; the record is unaffected
+            self._reduction_failure = (f"live reduction stopped: {type(exc).__name__}: {exc} (the record is kept; "
+                                       "check the rig file's sensor values with taprig check)")
+            self.event("failure", {"what": self._reduction_failure})
+
+    def _reduce_loop(self) -> None:
         while not (self._stop.is_set() and self._work.empty()):  # at the end, what was queued is still reduced
             try:
                 host_ns, items = self._work.get(timeout=0.1)
@@ -633,7 +660,7 @@ class Acquisition:
         recording = {}
         if self.writer is not None:
             recording = {"path": str(self.writer.path), "committed_chunks": self.writer.committed_chunks,
-                         "error": self.writer.error}
+                         "committed_scans": self.writer.committed_scans, "error": self.writer.error}
         return LiveState(host_ns, block, self.link.counters.as_dict(), self.link_state, dict(self.setpoints),
                          self.scans, recording, self.display_skipped, self.last_log)
 

@@ -125,7 +125,11 @@ class AngleSchedule:
         for event in events:
             data = event.data if isinstance(event.data, dict) else {}
             if event.kind == "setpoint" and data.get("actuator") in self._names and "value" in data:
-                self.add(event.host_ns, float(data["value"]))
+                value = data["value"]
+                if isinstance(value, bool) or not isinstance(value, (int, float)):
+                    raise ReplayError(f"damaged session: the setpoint event at host_ns {event.host_ns} has value "
+                                      f"{value!r}, expected a number in radians")
+                self.add(event.host_ns, float(value))
 
     def add(self, host_ns: int, value: float) -> None:
         """A setpoint of the angle actuator [rad] commanded at ``host_ns``."""

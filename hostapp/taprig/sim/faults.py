@@ -28,9 +28,10 @@ class FaultTally:
     ``frames_corrupted`` should equal the host's ``crc_errors + framing_errors`` (on a clean line),
     ``frames_lost`` its ``frames_lost`` and ``gaps`` its ``gaps`` (once a later frame has arrived),
     ``scans_lost`` its ``scans_lost`` (once a later ``SAMPLES`` frame of the same stream has arrived) and
-    ``resets`` its ``resets`` minus the boot at open. Scans of frames lost before the first frame of a stream
-    that does arrive cannot be counted by any receiver (the first block it sees sets its expectation); they
-    are in ``scans_unseen``.
+    ``resets`` its ``resets`` minus the boot at open. Scans lost before the first frame of a stream that does
+    arrive are counted by a receiver too (a stream starts at scan 0), so they join ``scans_lost`` once that frame
+    passes. Scans no receiver can count (the tail of a stream that a reset or a new START ended before another
+    of its frames passed, or a stream of which no frame passed) are in ``scans_unseen``.
     """
 
     frames_corrupted: int = 0
@@ -74,6 +75,7 @@ class LinkFaults:
         #: later SAMPLES frame of the same stream arrives.
         self.last_sample_lost = False
         self._delivered_in_stream = False
+        self._pending_scans = 0  # lost scans of this stream, countable once a later frame of it passes
         self.tally = FaultTally()
 
     @property
@@ -92,7 +94,9 @@ class LinkFaults:
         self.new_stream()
 
     def new_stream(self) -> None:
-        """A START began a stream: until one of its frames arrives, lost scans are unseen."""
+        """A START began a stream: the previous stream's lost scans not yet followed by a frame are unseen."""
+        self.tally.scans_unseen += self._pending_scans
+        self._pending_scans = 0
         self._delivered_in_stream = False
 
     def sample_frame(self, frame: bytes, n_scans: int, duration_s: float) -> bytes | None:
@@ -119,14 +123,13 @@ class LinkFaults:
                 return flip_bits(frame, n_flips, self._rng)
         self._previous_lost = self.last_sample_lost = False
         self._delivered_in_stream = True
+        self.tally.scans_lost += self._pending_scans
+        self._pending_scans = 0
         return frame
 
     def _lost(self, n_scans: int) -> None:
         self.tally.frames_lost += 1
-        if self._delivered_in_stream:
-            self.tally.scans_lost += n_scans
-        else:
-            self.tally.scans_unseen += n_scans
+        self._pending_scans += n_scans
         if not self._previous_lost:
             self.tally.gaps += 1
         self._previous_lost = True

@@ -11,6 +11,9 @@ options as ``--flags`` (``burst_rate`` → ``--burst-rate``). Units are SI excep
 
 from __future__ import annotations
 
+import math
+import os
+
 from dataclasses import dataclass, field, fields, replace
 from urllib.parse import parse_qsl, quote, unquote, urlsplit
 
@@ -21,43 +24,81 @@ RIG_ENVIRONMENT_VARIABLE = "TAPRIG_SIM_RIG"
 _PATH_SAFE = "/:\\"
 
 
+#: Largest paced speed factor; beyond it the pacing is finer than the host's clock (use ``speed=max``).
+MAX_SPEED_FACTOR = 1000.0
+#: Largest simulated time [s] an option may name (a year): later times never come in a run.
+MAX_TIME_S = 3.2e7
+
+
+def _float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise ValueError("must be a number") from None
+    if not math.isfinite(value):
+        raise ValueError("must be a finite number")
+    return value
+
+
 def _speed(text: str) -> float:
-    """``max`` → infinity (compressed time: as fast as the reader takes data), else a positive factor."""
+    """``max`` → infinity (compressed time: as fast as the reader takes data), else a factor in (0, 1000]."""
     if text.strip().lower() in ("max", "fast", "inf"):
         return float("inf")
-    value = float(text)
-    if not value > 0.0:
-        raise ValueError("must be > 0 or 'max'")
+    value = _float(text)
+    if not 0.0 < value <= MAX_SPEED_FACTOR:
+        raise ValueError(f"must be in (0, {MAX_SPEED_FACTOR:g}] or 'max' (as fast as the host reads)")
     return value
 
 
 def _times(text: str) -> tuple[float, ...]:
-    """A comma-separated list of times [s], each ≥ 0."""
-    values = tuple(float(t) for t in text.split(",") if t.strip())
-    if any(not v >= 0.0 for v in values):
-        raise ValueError("times must be >= 0")
+    """A comma-separated list of times [s], each in [0, a year]."""
+    values = tuple(_float(t) for t in text.split(",") if t.strip())
+    if any(not 0.0 <= v <= MAX_TIME_S for v in values):
+        raise ValueError(f"times must be in [0, {MAX_TIME_S:g}] s")
     return values
 
 
+def _time_or_never(text: str) -> float:
+    """A time [s] in [0, a year], or a negative number for never."""
+    value = _float(text)
+    if value > MAX_TIME_S:
+        raise ValueError(f"must be at most {MAX_TIME_S:g} s (or < 0 for never)")
+    return value
+
+
 def _nonnegative(text: str) -> float:
-    value = float(text)
+    value = _float(text)
     if not value >= 0.0:
         raise ValueError("must be >= 0")
     return value
 
 
 def _fraction(text: str) -> float:
-    value = float(text)
+    value = _float(text)
     if not 0.0 <= value <= 1.0:
         raise ValueError("must lie in [0, 1]")
     return value
 
 
-def _count(text: str) -> int:
-    value = int(text)
-    if value < 0:
-        raise ValueError("must be an integer >= 0")
-    return value
+def _ranged_int(low: int, high: int, unit: str = ""):
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            value = low - 1
+        if not low <= value <= high:
+            raise ValueError(f"must be a whole number in [{low}, {high}]{unit}")
+        return value
+    return parse
+
+
+def _ranged(low: float, high: float, unit: str = ""):
+    def parse(text: str) -> float:
+        value = _float(text)
+        if not low <= value <= high:
+            raise ValueError(f"must be in [{low:g}, {high:g}]{unit}")
+        return value
+    return parse
 
 
 def _switch(text: str) -> bool:
@@ -92,7 +133,7 @@ def _option(default, parse, help_text: str):
 class SimOptions:
     """Every option of the simulated rig, with its default (see ``docs/simulator.md``)."""
 
-    seed: int = _option(0, int, "seed of every random draw (noise, faults); same seed, same bytes")
+    seed: int = _option(0, _ranged_int(0, 2**32 - 1), "seed of every random draw (noise, faults); same seed, same bytes")
     speed: float = _option(1.0, _speed, "simulated time per wall time: 1 real time, 20 paced, 'max' compressed")
     noise: float = _option(1.0, _nonnegative, "scale of sensor noise and flow fluctuations (0 = none)")
     thermal: bool = _option(True, _switch, "offset drift of the sensors as the board warms up")
@@ -109,16 +150,16 @@ class SimOptions:
                           "blower (room + 0.3 q) or open-jet (room)")
     inlet_loss: float = _option(0.1, _nonnegative, "total-pressure loss of a suction tunnel's inlet, × q [-]")
     ambient_pa: float = _option(101325.0, _nonnegative, "barometric pressure of the room [Pa]")
-    ambient_c: float = _option(20.0, float, "room temperature [°C]")
+    ambient_c: float = _option(20.0, _ranged(-50.0, 100.0, " °C"), "room temperature [°C]")
     humidity: float = _option(0.5, _fraction, "relative humidity of the room [-]")
-    watchdog_ms: int = _option(1000, _count, "heartbeat timeout advertised and enforced [ms] (0 = never trips)")
+    watchdog_ms: int = _option(1000, _ranged_int(0, 65535, " ms (the protocol's u16 field)"), "heartbeat timeout advertised and enforced [ms] (0 = never trips)")
     ber: float = _option(0.0, _fraction, "bit-error rate of the link, device to host [-]")
     burst_rate: float = _option(0.0, _nonnegative, "burst drops of sample frames per second [1/s]")
-    burst_frames: int = _option(5, _count, "sample frames lost per burst")
-    disconnect: float = _option(-1.0, float, "the device vanishes after this many seconds (< 0 = never) [s]")
+    burst_frames: int = _option(5, _ranged_int(0, 1_000_000), "sample frames lost per burst")
+    disconnect: float = _option(-1.0, _time_or_never, "the device vanishes after this many seconds (< 0 = never) [s]")
     reset: tuple[float, ...] = _option((), _times, "times at which the board reboots, comma-separated [s]")
-    clock_ppm: float = _option(0.0, float, "device crystal error: its clock runs fast by this much [ppm]")
-    write_stall: float = _option(-1.0, float, "time at which the board stops taking host bytes (< 0 = never) [s]")
+    clock_ppm: float = _option(0.0, _ranged(-1e5, 1e5, " ppm"), "device crystal error: its clock runs fast by this much [ppm]")
+    write_stall: float = _option(-1.0, _time_or_never, "time at which the board stops taking host bytes (< 0 = never) [s]")
     write_stall_for: float = _option(1.0, _nonnegative, "how long the write stall lasts [s]")
     boot_text: bool = _option(False, _switch, "print a line of text before the first frame after each boot")
 
@@ -164,7 +205,7 @@ def parse_sim_url(url: str, default_rig: str | None = None) -> SimTarget:
     parts = urlsplit(url)
     if parts.scheme.lower() != "sim":
         raise ValueError(f"{url!r}: expected a URL of the form sim://RIG.toml?option=value&...")
-    path = unquote(parts.netloc + parts.path)
+    path = unquote(parts.netloc + parts.path, errors="surrogateescape")
     if not path:
         path = default_rig or ""
     if not path:
@@ -182,7 +223,7 @@ def sim_url(rig_path: str, query: str = "") -> str:
     The path is percent-quoted, keeping only ``/``, ``:`` and ``\\`` as they are, so a ``#``, ``?``, ``%`` or
     space in a file name reaches the rig loader unchanged instead of starting a fragment or the query.
     """
-    path = quote(str(rig_path), safe=_PATH_SAFE)
+    path = quote(os.fsencode(str(rig_path)), safe=_PATH_SAFE)  # a file name that is not UTF-8 survives too
     return f"sim://{path}?{query}" if query else f"sim://{path}"
 
 

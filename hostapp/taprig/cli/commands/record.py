@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import sys
+import time
 from pathlib import Path
 
 from taprig.cli import UserError, finite_positive, scan_rate
@@ -74,16 +75,45 @@ def _remove_unused(out) -> None:
         path.unlink(missing_ok=True)
 
 
-def print_summary(acquisition, out, stream=None) -> None:
-    """The last lines of a run: counters, where the session is, and any recording error."""
+def run_problems(acquisition) -> list[str]:
+    """What went wrong in a run that a summary must say: recording or reduction stopped, the link lost."""
+    problems = []
+    failure = acquisition.failure
+    if failure:
+        problems.append(failure)
+    lost_since = acquisition.link.lost_since_ns
+    if lost_since is not None:
+        problems.append(f"the run ended with the link to the board lost (for {(time.time_ns() - lost_since) / 1e9:.1f} s;"
+                        f" no data since): check the cable, then record again")
+    return problems
+
+
+def print_summary(acquisition, out, stream=None) -> int:
+    """The last lines of a run: what the file holds, counters, link outages and any failure; returns the exit
+    code the run deserves (1 when recording stopped, reduction stopped or the run ended with the link lost)."""
     from taprig.cli.ending import emit
 
     stream = stream or sys.stdout  # looked up now: a default bound at import would outlive a replaced stdout
     c = acquisition.link.counters.as_dict()
-    emit(f"recorded {acquisition.scans} scans to {out}", stream)
+    writer = acquisition.writer
+    held = writer.committed_scans if writer is not None else acquisition.scans
+    emit(f"recorded {held} scans to {out}", stream)
+    if writer is not None and held != acquisition.scans:
+        emit(f"  {acquisition.scans} scans were acquired; {acquisition.scans - held} of them are NOT in the file",
+             stream)
     emit("counters: " + ", ".join(f"{k} {v}" for k, v in c.items() if k != "bytes"), stream)
-    if acquisition.writer is not None and acquisition.writer.error:
-        emit(acquisition.writer.error, sys.stderr)
+    gaps = acquisition.link.gaps
+    if gaps:
+        total = sum(g.duration_s for g in gaps)
+        emit(f"link lost {len(gaps)} time(s), {total:.1f} s without data in all "
+             f"(longest {max(g.duration_s for g in gaps):.1f} s)", stream)
+    other = getattr(acquisition.link, "other_board_bytes", 0)
+    if other:
+        emit(f"{other} bytes from a different board on the same port were ignored, not recorded", stream)
+    problems = run_problems(acquisition)
+    for problem in problems:
+        emit(f"taprig: {problem}", sys.stderr)
+    return 1 if problems else 0
 
 
 def run(args) -> int:
@@ -111,7 +141,7 @@ def run(args) -> int:
                 station.close()
         report = acquisition.shutdown(ending.reason or "duration reached")
     report_ending("record", report, ending.reason)
-    print_summary(acquisition, out)
+    run_code = print_summary(acquisition, out)
     if ending.exit_code is not None:
         return ending.exit_code
-    return 1 if acquisition.writer.error else 0
+    return run_code

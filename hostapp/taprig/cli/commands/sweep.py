@@ -165,12 +165,12 @@ def sweep(args, port: str, stem: str | None = None, linger: bool = False) -> int
         report_ending(command, report, reason + kept)
     else:
         report_ending(command, report)
-    print_summary(acq, out)
+    run_code = print_summary(acq, out)  # 1 when recording stopped or the link was lost at the end
     me = program_name()
     emit(f"next: {me} info {out}   {me} review {out}   {me} export {out} --format csv -o run.csv")
     if signal_reason is not None:
         return ending.exit_code
-    return 0 if reason is None else 1
+    return 0 if reason is None and not run_code else 1
 
 
 class _SweepRun:
