@@ -7,7 +7,7 @@ BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed-stamp
 PYTEST_ARGS ?=
 
-.PHONY: demo test soak bench setup browser micropython clean
+.PHONY: demo test soak reliability bench setup browser micropython clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -27,11 +27,15 @@ MICROPYTHON_MODULES := $(CURDIR)/.cache/micropython/node_modules
 
 ## Every test (a few minutes on 2 cores). Installs what it needs first.
 test: $(STAMP) browser micropython
-	TAPRIG_MICROPYTHON_NODE_MODULES=$(MICROPYTHON_MODULES) $(BIN)/python -m pytest -n 2 -m "not soak" $(PYTEST_ARGS)
+	TAPRIG_MICROPYTHON_NODE_MODULES=$(MICROPYTHON_MODULES) $(BIN)/python -m pytest -n 2 -m "not soak and not reliability" $(PYTEST_ARGS)
 
 ## Long-running soak tests; TAPRIG_SOAK_SECONDS bounds them (CI runs a short form).
 soak: $(STAMP)
 	$(BIN)/python -m pytest -m soak $(PYTEST_ARGS)
+
+## The reliability campaign (docs/reliability.md): a short form (tens of seconds) unless TAPRIG_RELIABILITY=full.
+reliability: $(STAMP)
+	$(BIN)/python -m pytest -n 2 -m reliability -rA $(PYTEST_ARGS)
 
 ## Throughput figures against naive baselines measured in the same run.
 bench: $(STAMP)

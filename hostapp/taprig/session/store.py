@@ -157,7 +157,11 @@ def _os_reason(exc: BaseException, path: Path) -> str:
     folder = path.parent if str(path.parent) else Path(".")
     text = str(exc).lower()
     err = getattr(exc, "errno", None)
-    if err == errno.EROFS or "readonly" in text or "read-only" in text:
+    try:
+        read_only_fs = bool(os.statvfs(folder).f_flag & os.ST_RDONLY)
+    except (OSError, AttributeError):
+        read_only_fs = False
+    if err == errno.EROFS or read_only_fs or "readonly" in text or "read-only" in text:
         return f"the folder {printable_path(folder)} is on a read-only file system"
     if err in (errno.EACCES, errno.EPERM) or "unable to open" in text or "permission" in text:
         if folder.is_dir() and not os.access(folder, os.W_OK):
@@ -188,8 +192,8 @@ class SessionWriter:
     """
 
     RESERVE_BYTES = 1 << 20
-    CHECKPOINT_PAGES = 256
-    WAL_LIMIT_BYTES = 1 << 20
+    CHECKPOINT_PAGES = 1000
+    WAL_LIMIT_BYTES = 4 << 20
 
     def __init__(
         self,
