@@ -306,3 +306,15 @@ def test_a_huge_scan_rate_says_the_limit(capsys):
     with pytest.raises(SystemExit):
         main(["record", "--rig", str(AIRFOIL), "--port", SIM, "--rate", "1e39"])
     assert "at most 3.4e+38 Hz" in capsys.readouterr().err
+
+
+def test_check_refuses_relative_to_loops_that_record_would_refuse(tmp_path, capsys):
+    text = AIRFOIL.read_text()
+    loop = tmp_path / "loop.toml"
+    # two extra differential channels, each relative to the other: the reducer refuses such a rig
+    extra = ('\n[[channels]]\nindex = {i}\nname = "{name}"\nencoding = "u16"\nsensor = "tap"\n'
+             'measures = "differential"\nrelative_to = "{other}"\n')
+    loop.write_text(text + extra.format(i=40, name="ring_a", other="ring_b")
+                    + extra.format(i=41, name="ring_b", other="ring_a"))
+    code, _, err = run_cli(capsys, "check", loop)
+    assert code == 1 and "loop" in err and "ring_a → ring_b → ring_a" in err, err

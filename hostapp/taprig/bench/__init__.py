@@ -1,7 +1,8 @@
 """Benchmarks behind ``taprig bench`` / ``make bench``.
 
 Every module in this package named ``bench_*.py`` is a suite: it exposes
-``run(quick: bool) -> list[Record]``. Each record compares a measured figure with
+``run(quick: bool) -> list[Record]``; ``taprig bench`` finds every such module and prints all their records in
+one table (or ``--json``). Each record compares a measured figure with
 a naive baseline measured *in the same run*, so the ratio means something on a
 shared, noisy machine. Speed targets are checked here, never in timed tests.
 """
@@ -21,7 +22,8 @@ class Record:
 
     ``ratio`` is value / baseline for rates (higher is better) as the suite
     states it; ``None`` where there is no baseline. ``target`` is the issue's
-    target for ``value`` in the same unit, or ``None``.
+    target for ``value`` in the same unit, or ``None``; ``met`` says whether this
+    run reached it (``None`` where there is no target or it is not checked).
     """
 
     name: str
@@ -30,6 +32,7 @@ class Record:
     baseline: float | None = None
     ratio: float | None = None
     target: str | None = None
+    met: bool | None = None
 
     def as_dict(self) -> dict:
         return asdict(self)

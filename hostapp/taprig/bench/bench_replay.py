@@ -35,7 +35,9 @@ from taprig.sim import SimOptions, SimulatedDevice
 
 RIG_FILE = Path(__file__).resolve().parents[3] / "rigs" / "bench-64.toml"
 RATE_HZ = 2000.0
-TARGET_MULTIPLE = 100.0
+TARGET_MULTIPLE = 300.0
+#: Replay must beat merely parsing the same session's CSV export with pandas.read_csv by this factor.
+TARGET_CSV_RATIO = 5.0
 #: Host time of the first read in a simulated recording (2024-06-01 12:00 UTC) [ns since the epoch].
 HOST_EPOCH_NS = 1_717_243_200_000_000_000
 HEARTBEAT_NS = 250_000_000
@@ -157,7 +159,9 @@ def run(quick: bool) -> list[Record]:
     multiple, csv_multiple = seconds / t_replay, seconds / t_csv
     return [
         Record("replay 64 ch × 2 kHz, full reduction vs pandas.read_csv of its export", multiple, "× real time",
-               csv_multiple, multiple / csv_multiple, f"≥ {TARGET_MULTIPLE:g}× real time and faster than read_csv"),
+               csv_multiple, multiple / csv_multiple,
+               f"≥ {TARGET_MULTIPLE:g}× real time and ≥ {TARGET_CSV_RATIO:g}× read_csv",
+               met=multiple >= TARGET_MULTIPLE and multiple / csv_multiple >= TARGET_CSV_RATIO),
         Record("replay 64 ch × 2 kHz, scans reduced", scans / t_replay, "scans/s", scans / t_csv, t_csv / t_replay),
         Record("replay setup per session (rig snapshot, reducer)", t_setup, "s"),
         Record("CSV export of the same session, size", csv_mb, "MB"),

@@ -74,6 +74,16 @@ def _check_channels(rig: Rig) -> list[RigIssue]:
                 issues.append(RigIssue(f"{key}.relative_to", "expected 'static', 'total' or the name of a channel", ch.relative_to))
         elif ch.relative_to is not None:
             issues.append(RigIssue(f"{key}.relative_to", "only a differential channel has a reference", ch.relative_to))
+    refers = {c.name: c.relative_to for c in rig.channels if c.measures is Measures.DIFFERENTIAL and c.relative_to}
+    for i, ch in enumerate(rig.channels):
+        chain, name = [ch.name], refers.get(ch.name)
+        while name in refers and name not in chain:
+            chain.append(name)
+            name = refers[name]
+        if name == ch.name:  # reported once per loop, at its first channel in file order
+            if min(chain, key=[c.name for c in rig.channels].index) == ch.name:
+                issues.append(RigIssue(f"channels[{i}].relative_to", "channels refer to each other in a loop: "
+                                       + " → ".join(chain + [ch.name]), ch.relative_to))
     return issues
 
 

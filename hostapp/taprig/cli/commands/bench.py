@@ -40,11 +40,12 @@ def run(args) -> int:
     if args.json:
         print(json.dumps([r.as_dict() for r in records], indent=1))
         return 0
-    rows = [("benchmark", "value", "unit", "baseline", "ratio", "target")]
-    rows += [(r.name, _fmt(r.value), r.unit, _fmt(r.baseline), _fmt(r.ratio), r.target or "") for r in records]
+    rows = [("benchmark", "value", "unit", "baseline", "ratio", "target", "met")]
+    rows += [(r.name, _fmt(r.value), r.unit, _fmt(r.baseline), _fmt(r.ratio), r.target or "",
+              {True: "yes", False: "NO", None: ""}[getattr(r, "met", None)]) for r in records]
     widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]))]
     for i, row in enumerate(rows):
-        print("  ".join(c.ljust(w) if j in (0, 2, 5) else c.rjust(w) for j, (c, w) in enumerate(zip(row, widths))))
+        print("  ".join(c.ljust(w) if j in (0, 2, 5, 6) else c.rjust(w) for j, (c, w) in enumerate(zip(row, widths))))
         if i == 0:
             print("  ".join("-" * w for w in widths))
     return 0
