@@ -52,7 +52,7 @@ def test_a_rig_path_that_is_not_utf8_records_normally(tmp_path, capsys):
     rig = tmp_path / os.fsdecode(b"rig_\xe9.toml")
     shutil.copy(AIRFOIL, rig)
     out = tmp_path / "run.taprig"
-    code, stdout, err = run_cli(capsys, "record", "--rig", rig, "--port", SIM, "--duration", "0.5", "-o", out,
+    code, stdout, err = run_cli(capsys, "record", "--rig", rig, "--port", SIM, "--duration", "0.5", "--no-dashboard", "-o", out,
                                 "--quiet")
     assert code == 0, err
     with SessionReader(out) as reader:
@@ -84,7 +84,7 @@ def test_a_reduction_failure_ends_the_run_non_zero(tmp_path, capsys):
     rig = tmp_path / "inf.toml"
     rig.write_text(AIRFOIL.read_text().replace("a_per_pa = 0.00016", "a_per_pa = inf", 1))
     shutil.copy(RIGS / "bump-profile.csv", tmp_path)
-    code, stdout, err = run_cli(capsys, "record", "--rig", rig, "--port", SIM, "--duration", "30",
+    code, stdout, err = run_cli(capsys, "record", "--rig", rig, "--port", SIM, "--duration", "30", "--no-dashboard",
                                 "-o", tmp_path / "r.taprig", "--quiet")
     assert code == 1 and "live reduction stopped" in err, err
 
