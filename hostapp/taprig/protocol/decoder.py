@@ -242,8 +242,8 @@ class StreamDecoder:
         after_boot, self._after_boot = self._after_boot, False
         if expected is None or (first_scan == 0 and expected & _MASK32):
             index = first_scan  # first block seen, or the first block after a START
-            if after_boot:  # a stream after a boot starts at scan 0: those before this block were lost
-                self._counters.scans_lost += first_scan
+            if after_boot and first_scan < _HALF:  # a stream after a boot starts at scan 0: those before were lost
+                self._counters.scans_lost += first_scan  # (an index 2^31 on is a stream begun before the host saw it)
         else:
             ahead = (first_scan - expected) & _MASK32
             if ahead > _HALF and self._late_frame:
