@@ -19,6 +19,7 @@ RANK = {
     "physics": 0,
     "rig": 1,
     "reduce": 2,
+    "analysis": 2,
     "sim": 3,
     "link": 4,
     "session": 4,
@@ -32,7 +33,7 @@ RANK = {
 # Foundations are pure and must not depend on each other's siblings at their own rank either.
 FORBIDDEN_SAME_RANK = {("protocol", "physics"), ("physics", "protocol"), ("link", "session"), ("session", "link")}
 
-PURE = {"protocol", "physics", "rig", "reduce"}
+PURE = {"protocol", "physics", "rig", "reduce", "analysis"}
 IMPURE_MODULES = {"threading", "socket", "serial", "sqlite3", "subprocess", "flask", "multiprocessing"}
 
 
