@@ -149,12 +149,18 @@ def fan_speed(fan_value: ArrayLike, max_speed: float, unit: str) -> np.ndarray:
     return max_speed * np.clip(value * scale, 0.0, 1.0)
 
 
-def venturi_station_cp(areas: ArrayLike, reference_area: float, efficiency: float) -> np.ndarray:
+def venturi_station_cp(areas: ArrayLike, reference_area: float, efficiency: float,
+                       discharge_coefficient: float = 1.0) -> np.ndarray:
     r"""Station Cp along a venturi: ideal upstream of the throat, partial recovery downstream.
 
     .. math::
         C_p^{ideal} = 1 - (A_{ref}/A)^2, \qquad
         C_p = C_p^{th} + \eta_d\,(C_p^{ideal} - C_p^{th}) \ \text{downstream of the throat}
+
+    With a discharge coefficient C < 1 the convergent and the throat behave as if their areas were C times
+    smaller (the boundary layer's displacement): upstream stations and the throat read Cp^ideal / C², so the
+    ISO 5167-1 flow of the throat differential is C times the ideal one (ISO 5167-1:2003 §3.3.5, the definition
+    of C; the uniform scaling along the convergent is a simplification of ours).
 
     Parameters
     ----------
@@ -164,6 +170,8 @@ def venturi_station_cp(areas: ArrayLike, reference_area: float, efficiency: floa
         Area of the reference (inlet) station A_ref [m²].
     efficiency : float
         Diffuser efficiency η_d: the fraction of the ideal recovery reached [-], ≤ 1.
+    discharge_coefficient : float
+        Discharge coefficient C of the convergent and throat [-], 0 < C ≤ 1 (1: ideal).
 
     Returns
     -------
@@ -183,8 +191,8 @@ def venturi_station_cp(areas: ArrayLike, reference_area: float, efficiency: floa
     a = np.asarray(areas, dtype=float)
     ideal = ideal_station_cp(a, reference_area)
     throat = int(np.argmin(a))
-    cp = ideal.copy()
-    cp[throat + 1 :] = ideal[throat] + efficiency * (ideal[throat + 1 :] - ideal[throat])
+    cp = ideal / discharge_coefficient**2
+    cp[throat + 1 :] = cp[throat] + efficiency * (ideal[throat + 1 :] - ideal[throat])
     return cp
 
 

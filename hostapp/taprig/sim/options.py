@@ -100,6 +100,19 @@ def _ranged(low: float, high: float, unit: str = ""):
         return value
     return parse
 
+def _discharge(text: str) -> float:
+    value = float(text)
+    if not 0.5 <= value <= 1.0:
+        raise ValueError("must lie in [0.5, 1]")
+    return value
+
+
+def _count(text: str) -> int:
+    value = int(text)
+    if value < 0:
+        raise ValueError("must be an integer >= 0")
+    return value
+
 
 def _switch(text: str) -> bool:
     word = text.strip().lower()
@@ -140,6 +153,7 @@ class SimOptions:
     lag: bool = _option(True, _switch, "pneumatic lag of the tubing")
     viscous: bool = _option(True, _switch, "viscous lift-slope reduction of the airfoil (0 = inviscid panel Cp)")
     stall_deg: float = _option(12.0, _nonnegative, "critical angle of the airfoil above zero lift [deg]")
+    venturi_c: float = _option(1.0, _discharge, "discharge coefficient of a simulated venturi (1 = ideal)")
     max_speed: float = _option(0.0, _nonnegative, "stream speed at full fan [m/s] (0 = 20 for air, 0.5 for water)")
     fan_tau: float = _option(1.5, _nonnegative, "time constant of the stream's response to the fan [s]")
     fan_rate: float = _option(0.5, _nonnegative, "slew-rate limit of the fan [fraction of its range per s] (0 = none)")

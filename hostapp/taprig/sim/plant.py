@@ -134,7 +134,8 @@ def _body(rig: Rig, layout, options: SimOptions) -> tuple[np.ndarray, AirfoilFlo
         return np.zeros(n), AirfoilFlow(rig.section.shape, layout.x_c, layout.upper, stall)
     if rig.kind is RigKind.VENTURI and n:
         inlet = layout.names.index(rig.reference.inlet) if rig.reference.inlet in layout.names else 0
-        return venturi_station_cp(layout.area, float(layout.area[inlet]), DEFAULT_DIFFUSER_EFFICIENCY), None
+        return venturi_station_cp(layout.area, float(layout.area[inlet]), DEFAULT_DIFFUSER_EFFICIENCY,
+                                  options.venturi_c), None
     if rig.kind is RigKind.CYLINDER and n:
         return cylinder_cp(layout.theta), None
     if rig.kind is RigKind.BUMP and n:
