@@ -197,6 +197,7 @@ class Acquisition:
         # An ending asked for (a signal, the operator): automated steps stop at their next check.
         self.stop_reason: str | None = None
         self._reduction_failure: str | None = None
+        self._record_from_ns = 0  # chunks that arrived before this host time are not recorded (attach_writer)
         self.stop_requested = threading.Event()
         self._shutdown_lock = threading.Lock()
         self._shutting_down = threading.Event()
@@ -390,6 +391,9 @@ class Acquisition:
                 writer.add_event("setpoint", {"actuator": name, "value": value}, host_ns)
             if self._stream is not None:
                 writer.add_event("start", {"rate_hz": self._stream[0], "channel_mask": self._stream[1]}, host_ns)
+            # the record starts here: a chunk read a moment before, still on its way, is left out, so every chunk
+            # recorded lies after the setpoints above and replays at the angle the live run used
+            self._record_from_ns = host_ns
             self.writer = writer
 
     def detach_writer(self) -> SessionWriter | None:
@@ -531,7 +535,7 @@ class Acquisition:
         blocks = [item for item in items if isinstance(item, RawBlock)]
         n_scans = sum(b.n_scans for b in blocks)
         writer = self.writer  # once: recording may be stopped from another thread meanwhile
-        if writer is not None:
+        if writer is not None and host_ns >= self._record_from_ns:  # not a chunk read before recording began
             writer.append_chunk(chunk, host_ns, n_scans)
         self._watch_safety(items, host_ns)  # before the scans are kept: no point may use scans after a halt
         if self.link_state in ("connected", "restored") and any(isinstance(i, Description) for i in items):
