@@ -325,6 +325,7 @@ class Station(Display):
     def start_sweep(self, from_deg: float, to_deg: float, step_deg: float, settle_s: float = 1.0,
                     average_s: float = 1.0) -> int:
         """Step the angle actuator through the range on a thread, capturing a point at each; returns the count."""
+        from taprig.reduce.steady import SteadyCriteria
         from taprig.runtime.sweep import run_sweep
 
         servo = self.rig.actuator_of_kind(ActuatorKind.ANGLE)
@@ -359,7 +360,7 @@ class Station(Display):
         def run() -> None:
             try:
                 run_sweep(self.acq, angles, settle_s=settle_s, average_s=average_s, on_point=on_point,
-                          stop=status.stop)
+                          stop=status.stop, steady=SteadyCriteria())  # each point averaged once the flow is steady
                 status.message = "sweep stopped by the operator" if status.stop.is_set() else "sweep done"
             except (AcquisitionError, ReduceError, ValueError) as exc:
                 status.message = f"sweep ended: {exc}"
