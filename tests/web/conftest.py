@@ -20,6 +20,21 @@ AIRFOIL = RIGS / "naca0012-20tap.toml"
 VENTURI = RIGS / "venturi-8.toml"
 
 
+def replayed_mean(session: Path, scan_index: tuple[int, int], alpha_rad: float):
+    """The reducer's mean of the recorded scans ``scan_index[0]`` … ``[1]`` of ``session``, replayed from the file
+    (the independent computation a display update is checked against)."""
+    from taprig.protocol import RawBlock
+    from taprig.session.replay import Replay
+
+    with Replay(session) as replay:
+        raws = [b.raw for s in replay for b in s.blocks]
+        reducer = replay.reducer_in_force(replay.start_ns + 10**12)
+    raw = RawBlock.concat(raws)
+    keep = (raw.scan_index >= scan_index[0]) & (raw.scan_index <= scan_index[1])
+    window = RawBlock(raw.counts[keep], raw.channels, raw.t_ns[keep], raw.scan_index[keep])
+    return reducer.reduce_mean(window, alpha_rad=alpha_rad)
+
+
 class Live:
     """A station on the simulated rig with the app over it, and the keys to call it."""
 

@@ -12,11 +12,11 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from taprig.protocol import RawBlock
 from taprig.runtime.sweep import wait_device_time
 from taprig.session.replay import Replay
 from taprig.session.store import SessionReader
 from taprig.web import app as web_app
+from tests.web.conftest import replayed_mean
 
 
 def wait_for(live, predicate, timeout_s: float = 20.0) -> None:
@@ -181,14 +181,7 @@ def test_displayed_numbers_are_the_reducers_for_the_same_scans(live):
     wait_device_time(live.acq, 3.0, 30)
     shown = [f for f in frames(live, 5) if f["reading"] and f["reading"]["state"] == "flow"][-1]["reading"]
     path = live.post("/api/live/record-stop").get_json()["path"]
-    first, last = shown["window"]["scan_index"]
-    with Replay(path) as replay:
-        raws = [b.raw for s in replay for b in s.blocks]
-        reducer = replay.reducer_in_force(replay.start_ns + 10**12)
-    raw = RawBlock.concat(raws)
-    keep = (raw.scan_index >= first) & (raw.scan_index <= last)
-    window = RawBlock(raw.counts[keep], raw.channels, raw.t_ns[keep], raw.scan_index[keep])
-    mean = reducer.reduce_mean(window, alpha_rad=math.radians(5))
+    mean = replayed_mean(path, shown["window"]["scan_index"], math.radians(5))
     assert shown["flow"]["q_pa"][0] == mean.q_pa
     assert shown["coefficients"]["cl"] == [mean.corrected.cl, mean.corrected.u_cl]
     assert shown["taps"]["cp"] == [float(c) for c in mean.cp]

@@ -17,9 +17,8 @@ from pathlib import Path
 
 import pytest
 
-from taprig.protocol import RawBlock
-from taprig.session.replay import Replay
 from taprig.session.store import SessionReader
+from tests.web.conftest import replayed_mean
 
 pytestmark = pytest.mark.browser
 playwright_api = pytest.importorskip("playwright.sync_api")
@@ -165,14 +164,7 @@ def test_the_page_runs_the_rig_and_the_stop_reaches_the_board(browser, bench):
     with SessionReader(session) as reader:
         assert [e.data["text"] for e in reader.events() if e.kind == "note"] == ["tufts attached at 6 degrees"]
         assert len(reader.points()) == 1
-    first, last = drawn["window"]["scan_index"]
-    with Replay(session) as replay:
-        raws = [b.raw for s in replay for b in s.blocks]
-        reducer = replay.reducer_in_force(replay.start_ns + 10**12)
-    raw = RawBlock.concat(raws)
-    keep = (raw.scan_index >= first) & (raw.scan_index <= last)
-    mean = reducer.reduce_mean(RawBlock(raw.counts[keep], raw.channels, raw.t_ns[keep], raw.scan_index[keep]),
-                               alpha_rad=math.radians(6))
+    mean = replayed_mean(session, drawn["window"]["scan_index"], math.radians(6))
     value, u = drawn["cl"].split(" ± ")
     digits = len(value.split(".")[1]) if "." in value else 0
     assert abs(float(value) - mean.corrected.cl) <= 0.5 * 10 ** -digits + 1e-12
