@@ -223,7 +223,11 @@ def test_a_sweep_from_the_page_takes_its_points_and_can_be_stopped(live):
     wait_for(live, lambda: not live.station.sweep.running, 60)
     assert live.station.sweep.message == "sweep done"
     view = live.get("/api/live/points").get_json()
-    assert [round(p["alpha_deg"]) for p in view["points"]] == [0, 2, 4] and view["lift_curve"] is not None
+    assert [round(p["alpha_deg"]) for p in view["points"]] == [0, 2, 4]
+    curve = view["lift_curve"]
+    # thin-airfoil theory: 0.1097 per degree (docs/REFERENCES.md); the simulated section's viscous loss lowers it
+    assert 0.07 < curve["slope_per_deg"] < 0.12 and curve["u_slope_systematic_per_deg"] > 0
+    assert abs(curve["alpha_zero_lift_deg"]) < 1.0  # a symmetric section (NACA 0012): zero lift at 0°
     # refused before anything moves: reversed range, outside the servo's limits
     assert "below" in live.post("/api/live/sweep-start", {"from_deg": 4, "to_deg": 0}).get_json()["error"]
     assert "limits" in live.post("/api/live/sweep-start", {"from_deg": 0, "to_deg": 40}).get_json()["error"]

@@ -24,7 +24,7 @@ import numpy as np
 
 from taprig.protocol import ActuatorKind, DeviceState
 from taprig.reduce import ReduceError, ScanFlag
-from taprig.reduce.polar import lift_curve
+from taprig.analysis import find_stall, linear_range_fit
 from taprig.runtime.acquisition import Acquisition, AcquisitionError, LiveState
 from taprig.runtime.hub import Hub
 from taprig.runtime.viewframe import (actuator_value_from_operator, num, point_summary, reading,
@@ -93,24 +93,30 @@ class Display:
             del self.notices[:-20]
 
     def points_view(self) -> dict:
-        """Captured points and, from three or more with lift, the lift curve (slope, zero-lift angle, stall)."""
+        """Captured points and, from three or more with lift, the lift curve of :mod:`taprig.analysis` (the same
+        analysis as the handout): slope and zero-lift angle with their scatter and shared systematic parts, Cl max
+        and the stall, against the wall-corrected angle where the coefficients are corrected."""
         with self._lock:
             points = list(self.points)
-        curve = None
         usable = [p for p in points if p["cl"] is not None and p["alpha_deg"] is not None]
-        if len(usable) >= 3:
-            try:  # against the wall-corrected angle where the coefficients are corrected (as the sweep's curve)
-                fit = lift_curve([math.radians(p["alpha_corrected_deg"] if p["alpha_corrected_deg"] is not None
-                                               else p["alpha_deg"]) for p in usable], [p["cl"][0] for p in usable])
-                curve = {"slope_per_deg": num(fit.slope * math.pi / 180),
-                         "u_slope_per_deg": num(fit.u_slope * math.pi / 180),
-                         "alpha_zero_lift_deg": num(math.degrees(fit.alpha_zero_lift)),
-                         "linear_range_deg": [num(math.degrees(a)) for a in fit.linear_range],
-                         "cl_max": num(fit.cl_max), "alpha_cl_max_deg": num(math.degrees(fit.alpha_cl_max)),
-                         "stalled": bool(fit.stalled)}
-            except ValueError:
-                curve = None
-        return {"points": points, "lift_curve": curve}
+        if len(usable) < 3:
+            return {"points": points, "lift_curve": None}
+        alpha = [math.radians(p["alpha_corrected_deg"] if p["alpha_corrected_deg"] is not None else p["alpha_deg"])
+                 for p in usable]
+        cl = [p["cl"][0] for p in usable]
+        u_cl = [p["cl"][1] if p["cl"][1] is not None else math.nan for p in usable]
+        try:
+            fit, stall = linear_range_fit(alpha, cl, u_cl), find_stall(alpha, cl, u_cl)
+        except ValueError:  # too few distinct angles for a line
+            return {"points": points, "lift_curve": None}
+        per_deg = math.pi / 180
+        return {"points": points, "lift_curve": {
+            "slope_per_deg": num(fit.slope * per_deg), "u_slope_scatter_per_deg": num(fit.u_slope_scatter * per_deg),
+            "u_slope_systematic_per_deg": num(fit.u_slope_systematic * per_deg),
+            "alpha_zero_lift_deg": num(math.degrees(fit.alpha_zero)), "u_alpha_zero_deg": num(math.degrees(fit.u_alpha_zero)),
+            "linear_range_deg": [num(math.degrees(a)) for a in fit.alpha_range],
+            "cl_max": num(stall.cl_max), "u_cl_max": num(stall.u_cl_max),
+            "alpha_cl_max_deg": num(math.degrees(stall.alpha_cl_max)), "stalled": bool(stall.stalled)}}
 
     def status(self, state: LiveState | None) -> dict:
         """What the page shows besides the numbers (overridden)."""
