@@ -19,10 +19,11 @@ import serial
 from taprig.link import Link
 from taprig.reduce import Reducer
 from taprig.rig import load_rig
-from taprig.runtime.acquisition import Acquisition, session_meta
+from taprig.runtime.acquisition import Acquisition, AcquisitionError
+from taprig.runtime.recording import new_session
 from taprig.runtime.sweep import wait_device_time
 from taprig.session.replay import Replay
-from taprig.session.store import SessionReader, SessionWriter
+from taprig.session.store import SessionReader
 
 pytestmark = pytest.mark.soak
 
@@ -40,8 +41,7 @@ def test_soak_with_faults(tmp_path):
 
     rig = load_rig(RIG)
     reducer = Reducer(rig)
-    writer = SessionWriter(tmp_path / "soak.taprig", session_meta(rig, "sim", reducer.ambient))
-    writer.add_snapshot("rig", str(RIG), rig.source_text)
+    writer = new_session(tmp_path / "soak.taprig", rig, "sim", reducer.ambient, rig_source=str(RIG))  # + tap CSV
     url = f"sim://{RIG}?seed=11&speed=max&watchdog_ms=0&ber=3e-7&burst_rate=0.05&reset=200,900"
     acq = Acquisition(Link(url, heartbeat=False, opener=opener), rig, reducer, writer)
     acq.open(2000)
@@ -51,7 +51,13 @@ def test_soak_with_faults(tmp_path):
     try:
         acq.set_actuator("fan", 0.5)
         while time.monotonic() < deadline:
-            wait_device_time(acq, 30.0, timeout_s=120)
+            try:
+                wait_device_time(acq, 30.0, timeout_s=120)
+            except AcquisitionError:  # an injected reset halts the run: the soak plays the operator who resumes
+                assert acq.halted.is_set() and "restarted" in acq.halt_reason
+                acq.clear_halt()
+                acq.set_actuator("fan", 0.5)
+                continue
             rss.append(psutil.Process().memory_info().rss / 2**20)
             traced.append(tracemalloc.get_traced_memory()[0] / 2**20)
     finally:
