@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import sys
+from contextlib import contextmanager
 from pathlib import Path
 
 from taprig.cli import UserError, bounded
@@ -61,3 +62,30 @@ def start_dashboard(args, station=None, sessions_dir: str | Path | None = None, 
     if not args.no_browser:
         open_browser(url)
     return dashboard
+
+
+@contextmanager
+def serving(args, acquisition, sessions_dir: str | Path, new_writer=None, confirmed: bool = False):
+    """The live part of an acquiring command: a station and (unless ``--no-dashboard``) its page around the block.
+
+    Yields the :class:`~taprig.runtime.station.Station` (None with ``--no-dashboard``). A defect inside takes the
+    run's one shutdown path before it propagates; the page and the station are closed on the way out either way.
+    ``confirmed``: the operator already confirmed at the terminal that the rig may move.
+    """
+    from taprig.runtime.station import Station
+
+    station = dashboard = None
+    try:
+        if not getattr(args, "no_dashboard", False):
+            real = not acquisition.link.port_name.lower().startswith("sim://")
+            station = Station(acquisition, new_writer=new_writer, real_board=real and not confirmed)
+            dashboard = start_dashboard(args, station, sessions_dir=sessions_dir)
+        yield station
+    except BaseException:  # a defect: the rig is made safe and the session closed before it is reported
+        acquisition.shutdown("internal error")
+        raise
+    finally:
+        if dashboard is not None:
+            dashboard.close()
+        if station is not None:
+            station.close()

@@ -34,11 +34,10 @@ def register(sub) -> None:
 def run(args) -> int:
     from taprig.cli.commands.record import new_writer, open_run
     from taprig.cli.commands.sweep import SAFETY
-    from taprig.cli.dashboard import start_dashboard
+    from taprig.cli.dashboard import serving
     from taprig.cli.ending import RunEnding, emit, report_ending
     from taprig.cli.live import follow
     from taprig.cli.runopts import new_output_path
-    from taprig.runtime.station import Station
 
     print(SAFETY, file=sys.stderr)
     with RunEnding() as ending:
@@ -50,20 +49,10 @@ def run(args) -> int:
             out = new_output_path(None, args.sessions, rig.id)
             return new_writer(args, rig, acquisition.reducer.calibration, acquisition.reducer.ambient, url, out)
 
-        station = Station(acquisition, new_writer=writer, real_board=not url.lower().startswith("sim://"))
-        dashboard = None
-        try:
-            dashboard = start_dashboard(args, station, sessions_dir=args.sessions)
+        with serving(args, acquisition, args.sessions, new_writer=writer):
             emit(f"{rig.name!r} on {url}: run it from the page; Ctrl-C here ends the run (actuators to safe values)",
                  sys.stderr)
             follow(acquisition, None, args.quiet)  # until a signal or Ctrl-C
-        except BaseException:  # a defect: the rig is made safe and any session closed before it is reported
-            acquisition.shutdown("internal error")
-            raise
-        finally:
-            if dashboard is not None:
-                dashboard.close()
-            station.close()
         recording = acquisition.writer
         report = acquisition.shutdown(ending.reason or "run ended")
     report_ending("live", report, ending.reason)

@@ -117,28 +117,15 @@ def print_summary(acquisition, out, stream=None) -> int:
 
 
 def run(args) -> int:
-    from taprig.cli.dashboard import start_dashboard
+    from taprig.cli.dashboard import serving
     from taprig.cli.ending import RunEnding, report_ending
     from taprig.cli.live import follow
-    from taprig.runtime.station import Station
 
     with RunEnding() as ending:
         acquisition, out = open_run(args, args.port, "sessions")
         ending.attach(acquisition)
-        station = dashboard = None
-        try:
-            if not args.no_dashboard:
-                station = Station(acquisition, real_board=not args.port.lower().startswith("sim://"))
-                dashboard = start_dashboard(args, station, sessions_dir=Path(out).parent)
+        with serving(args, acquisition, Path(out).parent):
             follow(acquisition, args.duration, args.quiet)  # until the duration, a signal or Ctrl-C
-        except BaseException:  # a defect: the rig is made safe and the session closed before it is reported
-            acquisition.shutdown("internal error")
-            raise
-        finally:
-            if dashboard is not None:
-                dashboard.close()
-            if station is not None:
-                station.close()
         report = acquisition.shutdown(ending.reason or "duration reached")
     report_ending("record", report, ending.reason)
     run_code = print_summary(acquisition, out)

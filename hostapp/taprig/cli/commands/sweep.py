@@ -118,6 +118,7 @@ def sweep(args, port: str, stem: str | None = None, linger: bool = False) -> int
     closed, and the operator told what happened.
     """
     from taprig.cli.commands.record import open_run, print_summary
+    from taprig.cli.dashboard import serving
     from taprig.cli.ending import RunEnding, emit, report_ending
     from taprig.cli.runopts import load_rig_arg
     from taprig.protocol import ActuatorKind
@@ -133,28 +134,13 @@ def sweep(args, port: str, stem: str | None = None, linger: bool = False) -> int
     with RunEnding() as ending:
         acq, out = open_run(args, port, "sessions", stem=stem, rig=rig)
         ending.attach(acq)
-        station = dashboard = None
         run = _SweepRun(args, acq, fan, targets, linger)
-        try:
-            if not args.no_dashboard:
-                from taprig.cli.dashboard import start_dashboard
-                from taprig.runtime.station import Station
-
-                station = Station(acq, real_board=not port.lower().startswith("sim://"))
-                station.needs_confirmation = False  # the operator confirmed at the terminal (or with --yes)
-                dashboard = start_dashboard(args, station, sessions_dir=Path(out).parent)
+        # the operator confirmed at the terminal (or with --yes) that the rig may move
+        with serving(args, acq, Path(out).parent, confirmed=True) as station:
             run.station = station
             emit(f"{acq.rig.name!r} on {acq.link.port_name} ({acq.description.firmware}, {len(acq.rig.taps)} taps), "
                  f"recording to {out}")
             run.go()
-        except BaseException:  # a defect: the rig is made safe and the session closed before it is reported
-            acq.shutdown("internal error")
-            raise
-        finally:
-            if dashboard is not None:
-                dashboard.close()
-            if station is not None:
-                station.close()
         signal_reason = None if run.lingering else ending.reason  # Ctrl-C is how a lingering dashboard ends
         reason = signal_reason or (acq.halt_reason if acq.halted.is_set() else None) or run.failure
         report = acq.shutdown(reason or ending.reason or "sweep finished")
