@@ -7,7 +7,7 @@ BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed-stamp
 PYTEST_ARGS ?=
 
-.PHONY: demo test soak reliability bench setup browser micropython clean
+.PHONY: demo test soak reliability bench setup browser poppler micropython clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -26,7 +26,7 @@ export OPENBLAS_NUM_THREADS ?= 1
 MICROPYTHON_MODULES := $(CURDIR)/.cache/micropython/node_modules
 
 ## Every test (a few minutes on 2 cores). Installs what it needs first.
-test: $(STAMP) browser micropython
+test: $(STAMP) browser poppler micropython
 	TAPRIG_MICROPYTHON_NODE_MODULES=$(MICROPYTHON_MODULES) $(BIN)/python -m pytest -n 2 -m "not soak and not reliability" $(PYTEST_ARGS)
 
 ## Long-running soak tests; TAPRIG_SOAK_SECONDS bounds them (CI runs a short form).
@@ -44,6 +44,10 @@ bench: $(STAMP)
 ## MicroPython's WebAssembly port (npm), to run the reference firmware under a real MicroPython in the tests.
 micropython:
 	@bash tools/ensure-micropython
+
+## Debian's poppler-utils (pdftotext, pdftoppm) to read back the handout's PDF in the tests.
+poppler:
+	@bash tools/ensure-poppler
 
 ## Debian's Chromium for the dashboard's browser tests.
 browser:

@@ -18,6 +18,7 @@ fit) the integrator's own error estimate in quadrature.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -95,6 +96,7 @@ class ReducedMean:
     cp_ideal: np.ndarray | None = None
     scan_flag_counts: dict = field(default_factory=dict)
     u_mass_flow_kg_s: float | None = None
+    u_cl_balance: float | None = None
     assumptions: tuple[str, ...] = ()
     reference_note: str = ""
     calibration_warning: str = ""
@@ -287,6 +289,8 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
     default = shape if shape is not None else plain
     corrected, wall = wall_corrected(reducer, default, alpha) if default is not None else (None, None)
     lift, cl_balance = reducer.balance(plan, p_mean[None, :], np.array([q]))
+    u_cl_balance = balance_cl_u(float(lift[0]), float(np.sqrt(cov_p[plan.lift_column, plan.lift_column])),
+                                float(cl_balance[0]), q, u_q) if cl_balance is not None else None
     mass = reducer.venturi_flow(cp[None, :], np.array([q]), p_mean[None, :], plan)[0] \
         if reducer.layout.venturi is not None else None
     u_mass = venturi_mass_flow_u(reducer, plan, p_mean, cov_p, float(mass)) \
@@ -299,7 +303,7 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
         alpha_rad=alpha, plain=plain, shape=shape, corrected=corrected, wall=wall, flags=flags,
         excluded_taps=excluded,
         lift_n=float(lift[0]) if lift is not None else None,
-        cl_balance=float(cl_balance[0]) if cl_balance is not None else None,
+        cl_balance=float(cl_balance[0]) if cl_balance is not None else None, u_cl_balance=u_cl_balance,
         mass_flow_kg_s=float(mass) if mass is not None else None, u_mass_flow_kg_s=u_mass,
         cp_ideal=reducer.layout.venturi.cp_ideal if reducer.layout.venturi is not None else None,
         scan_flag_counts=count_flags(scan_flags, ScanFlag),
@@ -329,6 +333,22 @@ def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp
     result = fit.integrate(cpk, alpha)
     own = (float(result.u_cl), float(result.u_cd_p), float(result.u_cm_qc))
     return plain, coefficients_of("shape", fit.weights, cpk, alpha, covk, own), names, flags
+
+
+def balance_cl_u(lift_n: float, u_lift_n: float, cl_balance: float, q_pa: float, u_q_pa: float) -> float | None:
+    """Standard uncertainty of the balance's Cl = L / (q c b) [-] from those of the lift L [N] and of q [Pa].
+
+    u(Cl)/|Cl| = √((u_L/L)² + (u_q/q)²) (GUM, JCGM 100:2008 §5.1.6: a product of powers, the relative
+    uncertainties in quadrature; the load cell and the q sensor are separate sensors, taken as uncorrelated; chord
+    and span taken as exact). None where Cl, L or q is not a finite non-zero number.
+
+    >>> round(balance_cl_u(10.0, 0.1, 0.5, 200.0, 2.0), 6)
+    0.007071
+    """
+    values = (lift_n, u_lift_n, cl_balance, q_pa, u_q_pa)
+    if not all(math.isfinite(v) for v in values) or lift_n == 0 or q_pa == 0:
+        return None
+    return abs(cl_balance) * math.hypot(u_lift_n / lift_n, u_q_pa / q_pa)
 
 
 def trapezoid_error_estimate(x: np.ndarray, y: np.ndarray, cp: np.ndarray, alpha: float) -> tuple[float, float, float]:

@@ -1,0 +1,471 @@
+"""The handout's drawings, each onto a given matplotlib Axes, so a page and a figure alone (``--png``) are the same
+drawing. Every value drawn comes from :class:`~taprig.report.content.SessionContent` (the session's points, the
+analysis, the reduction's curves); points in a state (no flow, saturated …) are not drawn as numbers but listed.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from taprig.analysis import ISO_MACHINED
+from taprig.reduce.curves import THIN_AIRFOIL_SLOPE
+from taprig.report.content import PointView, SessionContent
+from taprig.report.style import (BALANCE, DOWN, GREY, INK, LOWER, ONE_WAY, THEORY, UP, UPPER, VERMILION, cycle,
+                                 marker_only, pm)
+from taprig.rig import RigKind
+
+DEG = 180.0 / math.pi
+
+
+def _num(value) -> float:
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def _errorbar(ax, x, y, u, style: dict, label: str | None = None, **kw):
+    x, y, u = (np.asarray(v, dtype=float) for v in (x, y, u))
+    ok = np.isfinite(x)  # a missing value (NaN) stays in place and breaks the line there
+    if not (ok & np.isfinite(y)).any():
+        return None
+    order = np.argsort(x[ok], kind="stable")
+    s = marker_only(style)
+    return ax.errorbar(x[ok][order], y[ok][order], yerr=np.where(np.isfinite(u[ok]), u[ok], 0.0)[order], capsize=2.5,
+                       ms=5, lw=1.1, elinewidth=0.8, label=label if label is not None else style.get("label"),
+                       **{**s, **kw})
+
+
+def best_coefficients(record: dict) -> dict:
+    """The record's coefficients in the order the analysis prefers them (corrected with its angle, shape, plain)."""
+    for name in ("corrected", "shape", "plain"):
+        c = record.get(name)
+        if name == "corrected" and record.get("wall_alpha_rad") is None:
+            continue
+        if isinstance(c, dict) and c.get("cl") is not None:
+            return c
+    for name in ("corrected", "shape", "plain"):
+        if isinstance(record.get(name), dict):
+            return record[name]
+    return {}
+
+
+def point_title(p: PointView) -> str:
+    """``α +4.0° up`` from the record (the commanded angle), else the point's label."""
+    alpha = _num(p.record.get("alpha_rad"))
+    fan = p.record.get("fan")
+    parts = []
+    if math.isfinite(alpha):
+        parts.append(f"α {alpha * DEG:+.1f}°")
+    if isinstance(fan, (int, float)):
+        parts.append(f"fan {fan:.3g}")
+    if p.leg:
+        parts.append(p.leg)
+    return "  ".join(parts) or p.label
+
+
+# -- Cp of one point -------------------------------------------------------------------------------------------
+
+def draw_cp_point(ax, content: SessionContent, p: PointView, legend: bool = True) -> None:
+    """Cp at the taps of one point with error bars, negative up, the fit curve or the theory beside it."""
+    kind = content.rig.kind
+    ax.set_title(f"{p.label}" if not math.isfinite(_num(p.record.get("alpha_rad"))) or kind is not RigKind.AIRFOIL
+                 else point_title(p), fontsize=9)
+    if not p.shown:
+        ax.text(0.5, 0.5, f"{p.state.upper()}\nno numbers shown for this point", ha="center", va="center",
+                fontsize=10, color=VERMILION, transform=ax.transAxes, fontweight="bold")
+        ax.set_xticks([]), ax.set_yticks([])
+        return
+    layout = content.rig.tap_layout()
+    cp_map, u_map = p.record.get("cp") or {}, p.record.get("u_cp") or {}
+    names = list(layout.names)
+    cp = np.array([_num(cp_map.get(n)) for n in names])
+    u = np.array([_num(u_map.get(n)) for n in names])
+    missing = [n for n, c in zip(names, cp) if not math.isfinite(c)]
+    if kind in (RigKind.AIRFOIL, RigKind.BUMP) and layout.x_c is not None:
+        x = np.asarray(layout.x_c, dtype=float)
+        upper = np.asarray(layout.upper, dtype=bool) if layout.upper is not None else np.ones(x.size, dtype=bool)
+        for mask, style in ((upper, UPPER), (~upper, LOWER)):
+            if mask.any():
+                _errorbar(ax, x[mask], cp[mask], u[mask], {**style, "ls": "none"}, label=f"{style['label']} taps")
+        if p.fit is not None:
+            fu = np.asarray(p.fit.upper, dtype=bool)
+            ax.plot(p.fit.x[fu], p.fit.y[fu], color=UPPER["color"], ls=UPPER["ls"], lw=1.0, label="fit, upper")
+            ax.plot(p.fit.x[~fu], p.fit.y[~fu], color=LOWER["color"], ls=LOWER["ls"], lw=1.0, label="fit, lower")
+        ax.set_xlabel("x/c")
+    elif kind is RigKind.CYLINDER and layout.theta is not None:
+        theta = np.degrees(np.asarray(layout.theta, dtype=float))
+        _errorbar(ax, theta, cp, u, {**UPPER, "ls": "-"}, label="measured")
+        for curve in content.reference:
+            ax.plot(curve.x, curve.y, label=curve.label, **THEORY)
+        ax.set_xlabel("θ from the front stagnation point [°]")
+    elif kind is RigKind.VENTURI and layout.x is not None:
+        x = np.asarray(layout.x, dtype=float) * 1e3
+        _errorbar(ax, x, cp, u, {**UPPER, "ls": "-"}, label="measured")
+        for curve in content.reference:
+            ax.plot(np.asarray(curve.x) * 1e3, curve.y, marker="x", label=curve.label, **THEORY)
+        ax.set_xlabel("station x [mm]")
+    else:
+        _errorbar(ax, np.arange(cp.size), cp, u, {**UPPER, "ls": "-"}, label="measured")
+        ax.set_xticks(np.arange(cp.size), names, fontsize=6, rotation=90)
+    ax.invert_yaxis()  # negative Cp (suction) up
+    ax.set_ylabel("Cp  (negative up)")
+    ax.axhline(0.0, color=GREY, lw=0.5)
+    ax.grid(True, lw=0.3, alpha=0.5)
+    note = []
+    c = best_coefficients(p.record)
+    cl = pm(c.get("cl"), c.get("u_cl"))
+    if cl is not None and kind is RigKind.AIRFOIL:
+        note.append(f"Cl {cl}")
+    if missing:
+        note.append("no reading: " + ", ".join(missing[:6]) + (" …" if len(missing) > 6 else ""))
+    if p.saturated_taps:
+        note.append("saturated taps left out")
+    if note:
+        ax.text(0.02, 0.02, "\n".join(note), transform=ax.transAxes, fontsize=7, va="bottom", color=INK,
+                bbox=dict(fc="white", ec="none", alpha=0.8))
+    if legend:
+        ax.legend(fontsize=6, loc="upper right", framealpha=0.85)
+
+
+# -- lift curve ---------------------------------------------------------------------------------------------------
+
+def _angle_label(content: SessionContent) -> str:
+    a = content.analysis
+    corrected = a is not None and any("walls" in m for m in a.table.method)
+    return "α [°]" + ("  (corrected for the walls)" if corrected else "")
+
+
+def draw_lift(ax, content: SessionContent) -> None:
+    """Cl against α: the points (up and down legs apart), the linear fit, thin-airfoil slope, stall, balance."""
+    a = content.analysis
+    ax.set_title("Lift curve", fontsize=10)
+    if a is None or not len(a.table):
+        ax.text(0.5, 0.5, "no point with flow: no lift curve", transform=ax.transAxes, ha="center")
+        return
+    t = a.table
+    alpha = t.alpha_rad * DEG
+    legs = np.array(t.leg)
+    if (legs == "down").any():
+        for mask, style in ((legs != "down", UP), (legs == "down", DOWN)):
+            _errorbar(ax, alpha[mask], t.cl[mask], t.u_cl[mask], style)
+    else:
+        _errorbar(ax, alpha, t.cl, t.u_cl, ONE_WAY, label="pressure-integrated Cl")
+    if content.rig.balance is not None:
+        if np.isfinite(t.u_cl_balance).any():
+            ok = np.isfinite(t.u_cl_balance)
+            _errorbar(ax, alpha[ok], t.cl_balance[ok], t.u_cl_balance[ok], BALANCE)
+        else:
+            ax.text(0.98, 0.02, "balance: no uncertainty recorded, not drawn", transform=ax.transAxes, ha="right",
+                    fontsize=7, color=GREY)
+    fit = a.fit
+    if fit is not None:
+        span = np.array([fit.alpha_range[0], fit.alpha_range[1]])
+        ax.plot(span * DEG, fit.at(span), color=INK, lw=1.6, ls="-",
+                label=f"linear fit {fit.alpha_range[0] * DEG:.1f}…{fit.alpha_range[1] * DEG:.1f}°")
+        wide = np.array([min(alpha.min(), span[0]), max(alpha.max(), span[1])]) / DEG
+        ax.plot(wide * DEG, THIN_AIRFOIL_SLOPE * (wide - fit.alpha_zero), label="thin airfoil 2π through α₀",
+                **THEORY)
+    stall = a.stall
+    if stall is not None:
+        ax.plot([stall.alpha_cl_max * DEG], [stall.cl_max], marker="*", ms=13, mfc="white", mec=INK, ls="none",
+                label=f"Cl max {stall.cl_max:.3f}")
+        if stall.stalled:
+            ax.axvline(stall.alpha_stall * DEG, color=GREY, ls=":", lw=1.0)
+            ax.text(stall.alpha_stall * DEG, ax.get_ylim()[0], " stall", rotation=90, va="bottom", fontsize=7,
+                    color=GREY)
+    ax.axhline(0, color=GREY, lw=0.5)
+    ax.set_xlabel(_angle_label(content))
+    ax.set_ylabel("Cl")
+    ax.grid(True, lw=0.3, alpha=0.5)
+    ax.legend(fontsize=7, loc="upper left", framealpha=0.85)
+
+
+def draw_polar(ax, content: SessionContent) -> None:
+    """Pressure drag against lift (Cd_p: taps only, no skin friction)."""
+    a = content.analysis
+    ax.set_title("Pressure-drag polar (no skin friction)", fontsize=9)
+    if a is None or a.polar is None:
+        ax.text(0.5, 0.5, (a.reasons.get("polar") if a else None) or "no polar", transform=ax.transAxes,
+                ha="center", fontsize=7, wrap=True)
+        return
+    pol = a.polar
+    ax.errorbar(pol.cd_p, pol.cl, xerr=np.nan_to_num(pol.u_cd_p), yerr=np.nan_to_num(pol.u_cl), capsize=2,
+                **marker_only(ONE_WAY), ms=4, lw=1.0, elinewidth=0.7)
+    ax.set_xlabel("Cd_p")
+    ax.set_ylabel("Cl")
+    ax.grid(True, lw=0.3, alpha=0.5)
+
+
+def draw_moment(ax, content: SessionContent) -> None:
+    """Cm about the quarter chord against α."""
+    a = content.analysis
+    ax.set_title("Pitching moment about c/4", fontsize=9)
+    if a is None:
+        return
+    t = a.table
+    _errorbar(ax, t.alpha_rad * DEG, t.cm_qc, t.u_cm_qc, ONE_WAY, label="Cm¼")
+    ax.set_xlabel(_angle_label(content))
+    ax.set_ylabel("Cm¼")
+    ax.grid(True, lw=0.3, alpha=0.5)
+
+
+def draw_unsteadiness(ax, content: SessionContent) -> None:
+    """The unsteadiness indicator per point against its threshold."""
+    a = content.analysis
+    ax.set_title("Unsteadiness (suction-side Cp RMS / attached level)", fontsize=9)
+    if a is None or a.unsteadiness is None:
+        ax.text(0.5, 0.5, (a.reasons.get("unsteadiness") if a else "") or "not recorded", transform=ax.transAxes,
+                ha="center", va="center", fontsize=7, wrap=True)
+        ax.set_xticks([]), ax.set_yticks([])
+        return
+    u = a.unsteadiness
+    ax.plot(a.table.alpha_rad * DEG, u.indicator, **marker_only(ONE_WAY), ms=4)
+    ax.axhline(u.threshold, color=VERMILION, ls="--", lw=1.0, label=f"threshold {u.threshold:g}")
+    ax.set_xlabel(_angle_label(content))
+    ax.legend(fontsize=7)
+    ax.grid(True, lw=0.3, alpha=0.5)
+
+
+def lift_results(content: SessionContent) -> list[str]:
+    """The lift curve's numbers as sentences, each with its uncertainty, or the reason it is not there."""
+    a = content.analysis
+    if a is None:
+        return ["No point with flow: nothing to analyse."]
+    out = []
+    fit = a.fit
+    if fit is not None:
+        out.append(f"Lift slope {pm(fit.slope_per_deg, fit.u_slope_scatter * math.pi / 180)} per degree (scatter) "
+                   f"± {fit.u_slope_systematic * math.pi / 180:.4f} (shared systematic part), "
+                   f"{fit.slope:.3f} per radian against thin-airfoil 2π = {THIN_AIRFOIL_SLOPE:.3f} "
+                   f"({100 * (fit.slope / THIN_AIRFOIL_SLOPE - 1):+.1f} %), linear over "
+                   f"{fit.alpha_range[0] * DEG:.1f}…{fit.alpha_range[1] * DEG:.1f}° ({fit.n_points} points).")
+        out.append(f"Zero-lift angle {pm(fit.alpha_zero * DEG, fit.u_alpha_zero_scatter * DEG)}° (scatter) "
+                   f"± {fit.u_alpha_zero_systematic * DEG:.2f}° (systematic).")
+    else:
+        out.append(f"No linear fit: {a.reasons.get('fit', 'too few points')}.")
+    stall = a.stall
+    if stall is not None:
+        cl_max = pm(stall.cl_max, stall.u_cl_max) or f"{stall.cl_max:.3f} (no uncertainty)"
+        text = f"Cl max {cl_max} at α = {stall.alpha_cl_max * DEG:.1f}°"
+        if stall.stalled:
+            text += (f"; stall at {stall.alpha_stall * DEG:.1f}° ± {stall.resolution * DEG:.1f}° (half the step), "
+                     + ("abrupt (Cl falls by more than a fifth within 2°)" if stall.abrupt else "gradual") + ".")
+        else:
+            text += f"; {a.reasons.get('stall', 'no stall within the sweep')}."
+        out.append(text)
+    h = a.hysteresis
+    if h is not None:
+        out.append(f"Hysteresis: up and down legs differ beyond twice their uncertainty over "
+                   f"{h.alpha_range[0] * DEG:.1f}…{h.alpha_range[1] * DEG:.1f}°, loop area {h.area:.4f} rad."
+                   if h.present else "Hysteresis: up and down legs agree within twice their uncertainty.")
+    else:
+        out.append("Hysteresis: " + a.reasons.get("hysteresis", "not measured") + ".")
+    if a.moment is not None:
+        out.append(f"dCm¼/dα {pm(a.moment.slope_per_deg, a.moment.u_slope * math.pi / 180)} per degree "
+                   "(0 when the aerodynamic centre is at the quarter chord).")
+    b = a.balance
+    if content.rig.balance is not None:
+        if b is not None and np.isfinite(b.u_difference).any() and np.isfinite(a.table.u_cl_balance).any():
+            out.append(f"Balance against pressures: mean difference Cl(pressures) − Cl(balance) "
+                       f"{b.mean_difference:+.3f}, RMS {b.rms_difference:.3f}; agree within 2u at "
+                       f"{int(b.agree.sum())} of {b.agree.size} points.")
+        else:
+            out.append("Balance: " + a.reasons.get("balance", "its uncertainty was not recorded (older session)")
+                       + ".")
+    un = a.unsteadiness
+    if un is not None and math.isfinite(un.first_unsteady_alpha):
+        out.append(f"Unsteady (separated) flow from α = {un.first_unsteady_alpha * DEG:.1f}° "
+                   f"(indicator above {un.threshold:g}, a threshold of ours).")
+    return out
+
+
+# -- venturi -------------------------------------------------------------------------------------------------------
+
+def draw_venturi_cp(ax, content: SessionContent) -> None:
+    """Measured Cp of every point along the stations beside the ideal (continuity + Bernoulli)."""
+    layout = content.rig.tap_layout()
+    x = np.asarray(layout.x, dtype=float) * 1e3
+    ax.set_title("Pressure along the venturi: measured and ideal", fontsize=10)
+    for i, p in enumerate(content.shown):
+        cp_map, u_map = p.record.get("cp") or {}, p.record.get("u_cp") or {}
+        cp = [_num(cp_map.get(n)) for n in layout.names]
+        u = [_num(u_map.get(n)) for n in layout.names]
+        _errorbar(ax, x, cp, u, cycle(i), label=p.label)
+    for curve in content.reference:
+        ax.plot(np.asarray(curve.x) * 1e3, curve.y, label=curve.label, **{**THEORY, "color": INK, "lw": 1.6})
+    ax.invert_yaxis()
+    ax.set_xlabel("station x [mm]")
+    ax.set_ylabel("Cp referred to the inlet  (negative up)")
+    ax.grid(True, lw=0.3, alpha=0.5)
+    ax.legend(fontsize=7)
+
+
+def draw_venturi_flow(ax, content: SessionContent) -> None:
+    """Mass flow of each point against its q, with its uncertainty."""
+    ax.set_title("Flow rate with its uncertainty", fontsize=10)
+    q, m, u = [], [], []
+    for p in content.shown:
+        q.append(_num(p.record.get("q_pa")))
+        m.append(_num(p.record.get("mass_flow_kg_s")) * 1e3)
+        u.append(_num(p.record.get("u_mass_flow_kg_s")) * 1e3)
+    q, m, u = (np.array(v) for v in (q, m, u))
+    ok = np.isfinite(u)
+    if not ok.any():
+        ax.text(0.5, 0.5, "no flow rate with an uncertainty recorded", transform=ax.transAxes, ha="center")
+        return
+    _errorbar(ax, q[ok], m[ok], u[ok], ONE_WAY, label="mass flow (ISO 5167-4)")
+    ax.set_xlabel("inlet dynamic pressure q [Pa]")
+    ax.set_ylabel("mass flow [g/s]")
+    ax.grid(True, lw=0.3, alpha=0.5)
+    ax.legend(fontsize=7)
+
+
+def draw_discharge(ax, content: SessionContent) -> None:
+    """C against Re_D beside ISO 5167-4's value for a machined convergent and the range where it holds."""
+    a = content.analysis
+    ax.set_title("Discharge coefficient against Re_D", fontsize=10)
+    iso = ISO_MACHINED
+    band = iso.c * (1 - 2 * iso.relative_uncertainty), iso.c * (1 + 2 * iso.relative_uncertainty)
+    ax.fill_between(iso.re_d, [band[0]] * 2, [band[1]] * 2, fc="#e6e6e6", ec=GREY, hatch="///", lw=0.6,
+                    label=f"ISO 5167-4: C = {iso.c} ± 2 % (k = 2)\nfor Re_D {iso.re_d[0]:.0e}…{iso.re_d[1]:.0e}")
+    ax.plot(iso.re_d, [iso.c] * 2, color=INK, lw=0.8)
+    dc = a.discharge if a is not None else None
+    if dc is not None:
+        _errorbar(ax, dc.re_d, dc.c, dc.u_c, ONE_WAY, label="measured C")
+        ax.set_xlim(min(np.nanmin(dc.re_d) * 0.7, iso.re_d[0] * 0.5), iso.re_d[1] * 1.5)
+    else:
+        reason = (a.reasons.get("discharge") if a is not None else None) or "no point with flow"
+        ax.text(0.5, 0.5, "C not measured:\n" + "\n".join(_lines(reason, 55)), transform=ax.transAxes,
+                ha="center", va="center", fontsize=7, bbox=dict(fc="white", ec=GREY))
+        ax.set_xlim(1e4, iso.re_d[1] * 1.5)
+    ax.set_xscale("log")
+    ax.set_xlabel("Re_D (inlet)")
+    ax.set_ylabel("C")
+    ax.grid(True, lw=0.3, alpha=0.5, which="both")
+    ax.legend(fontsize=7, loc="lower right")
+
+
+def _lines(text: str, width: int) -> list[str]:
+    from taprig.report.style import wrap
+
+    return wrap(text, width)
+
+
+def venturi_results(content: SessionContent) -> list[str]:
+    a = content.analysis
+    if a is None or a.stations is None:
+        return ["No point with flow through the venturi."]
+    s = a.stations
+    out = [f"Diameter ratio β = {s.beta:.3f}, inlet D = {s.inlet_diameter_m * 1e3:.1f} mm; ideal throat Cp "
+           f"{s.cp_ideal[s.throat]:.3f} (continuity and Bernoulli, referred to the inlet)."]
+    dc = a.discharge
+    if dc is not None:
+        out.append(f"Discharge coefficient C = {pm(dc.mean_c, dc.u_mean_c)} over Re_D "
+                   f"{np.nanmin(dc.re_d):.3g}…{np.nanmax(dc.re_d):.3g}; ISO 5167-4 states {ISO_MACHINED.c} ± "
+                   f"{100 * ISO_MACHINED.relative_uncertainty:g} % for a machined convergent.")
+        if a.iso_outside:
+            out.append("Outside the standard's range: " + "; ".join(a.iso_outside) + " (its C does not apply there).")
+    else:
+        out.append("C not measured: " + a.reasons.get("discharge", "no point with flow") + ".")
+    return out
+
+
+# -- rig sketch, calibration, comparison ---------------------------------------------------------------------------
+
+def draw_rig(ax, content: SessionContent) -> None:
+    """The rig as :func:`taprig.rig.picture.rig_picture` places it: walls, model, taps, flow direction."""
+    from matplotlib.patches import Polygon
+
+    from taprig.rig.picture import rig_picture
+
+    pic = rig_picture(content.rig, 0.0)
+    for wall in pic.walls:
+        ax.plot([p[0] for p in wall], [p[1] for p in wall], color="#444444", lw=2.0)
+    if pic.outline:
+        ax.add_patch(Polygon(pic.outline, closed=True, fc="#d9dde3", ec=INK, lw=0.8))
+    for tap in pic.taps:
+        if tap.x is not None and tap.y is not None:
+            style = LOWER if tap.surface == "lower" else UPPER
+            ax.plot([tap.x], [tap.y], marker=style["marker"], ms=3, mfc=style["mfc"], mec=style["color"], ls="none")
+    (x0, y0), (x1, y1) = pic.flow
+    ax.annotate("", xy=(x1, y1), xytext=(x0, y0), arrowprops=dict(arrowstyle="-|>", color=GREY, lw=1.0))
+    ax.text(x0, y0, "flow ", ha="right", va="center", fontsize=7, color=GREY)
+    xmin, xmax, ymin, ymax = pic.extent
+    ax.set_xlim(xmin, xmax)
+    ax.set_ylim(ymin, ymax)
+    ax.set_aspect("equal", adjustable="box")
+    ax.set_axis_off()
+    ax.set_title("The rig, to scale", fontsize=8)
+
+
+def draw_calibration(ax, content: SessionContent) -> None:
+    """Per channel: the zero's standard error [counts] and, for spanned channels, the span fit's largest residual
+    [% FS] — the calibration's own statistics, as stored with the session."""
+    cal = content.calibration
+    ax.set_title("Calibration residuals per channel", fontsize=8)
+    if cal is None or not cal.channels:
+        ax.text(0.5, 0.5, "no calibration stored: nominal transfer functions,\ndatasheet uncertainties",
+                ha="center", va="center", fontsize=7, transform=ax.transAxes)
+        ax.set_xticks([]), ax.set_yticks([])
+        return
+    names = list(cal.channels)
+    zero = np.array([_num(cal.channels[n].zero_std_error) for n in names])
+    lin = np.array([_num(cal.channels[n].linearity_pct_fs) for n in names])
+    pos = np.arange(len(names))
+    ax.bar(pos - 0.2, np.nan_to_num(zero), width=0.4, color="white", edgecolor=INK, hatch="///",
+           label="zero std. error [counts]")
+    ax.set_xticks(pos, names, rotation=90, fontsize=6)
+    ax.set_ylabel("counts", fontsize=7)
+    ax.tick_params(labelsize=6)
+    handles, labels = ax.get_legend_handles_labels()
+    if np.isfinite(lin).any():
+        ax2 = ax.twinx()
+        ax2.bar(pos + 0.2, np.nan_to_num(lin), width=0.4, color=GREY, label="span fit, largest residual [% FS]")
+        ax2.set_ylabel("% FS", fontsize=7)
+        ax2.tick_params(labelsize=6)
+        h2, l2 = ax2.get_legend_handles_labels()
+        handles, labels = handles + h2, labels + l2
+    ax.legend(handles, labels, fontsize=6, loc="upper right")
+
+
+def comparison_value(content: SessionContent) -> tuple[str, np.ndarray, np.ndarray, np.ndarray]:
+    """What one session contributes to a comparison: (name, values, uncertainties, mask of shown points) of the
+    quantity a rig of its kind is read by (Cl; a venturi's mass flow; otherwise Cd_p)."""
+    shown = content.shown
+    if content.rig.kind is RigKind.AIRFOIL:
+        vals = [best_coefficients(p.record) for p in shown]
+        return "Cl", np.array([_num(c.get("cl")) for c in vals]), np.array([_num(c.get("u_cl")) for c in vals]), None
+    if content.rig.kind is RigKind.VENTURI:
+        return ("mass flow [g/s]", np.array([_num(p.record.get("mass_flow_kg_s")) * 1e3 for p in shown]),
+                np.array([_num(p.record.get("u_mass_flow_kg_s")) * 1e3 for p in shown]), None)
+    vals = [best_coefficients(p.record) for p in shown]
+    return "Cd_p", np.array([_num(c.get("cd_p")) for c in vals]), np.array([_num(c.get("u_cd_p")) for c in vals]), None
+
+
+def comparison_x(content: SessionContent, align: str) -> np.ndarray:
+    """Each shown point's place on the comparison's axis: the commanded α [°] or q [Pa]."""
+    if align == "alpha":
+        return np.array([_num(p.record.get("alpha_rad")) * DEG for p in content.shown])
+    return np.array([_num(p.record.get("q_pa")) for p in content.shown])
+
+
+def draw_comparison(ax, contents: list[SessionContent], align: str) -> None:
+    """Several sessions on one axes, aligned by α or by q."""
+    names = set()
+    for i, c in enumerate(contents):
+        name, y, u, _ = comparison_value(c)
+        names.add(name)
+        x = comparison_x(c, align)
+        re = np.array([_num(p.record.get("re")) for p in c.shown])
+        re_text = f", Re ≈ {np.nanmedian(re):.3g}" if np.isfinite(re).any() else ""
+        _errorbar(ax, x, y, np.where(np.isfinite(u), u, np.nan), cycle(i), label=f"{c.path.name}{re_text}")
+    ax.set_xlabel("α commanded [°]" if align == "alpha" else "q [Pa]")
+    ax.set_ylabel(" / ".join(sorted(names)))
+    ax.set_title("Sessions compared, aligned by " + ("angle of attack" if align == "alpha" else "dynamic pressure"),
+                 fontsize=10)
+    ax.axhline(0, color=GREY, lw=0.5)
+    ax.grid(True, lw=0.3, alpha=0.5)
+    ax.legend(fontsize=7)

@@ -1,0 +1,312 @@
+"""`taprig handout` on sessions of every example rig kind, made on the simulated rig in compressed time.
+
+The PDF is read back with poppler (pdftotext, pdftoppm, pdfinfo; ``make test`` installs them through
+tools/ensure-poppler): its headings are there, the numbers it prints equal the session's own (read here from the
+file independently of the report), and no page is blank.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+import shutil
+import subprocess
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from taprig.analysis import analyse_points
+from taprig.cli import main
+from taprig.report import point_state
+from taprig.report.style import pm
+from taprig.session.api import open_session
+from taprig.session.store import SessionReader
+from tests.report.sessions import RIGS, fan_steps_session, sweep_session
+
+ROOT = Path(__file__).resolve().parents[2]
+VENTURI_PITOT = ROOT / "tests" / "analysis" / "venturi-pitot.toml"
+SIM_C = 0.97  # the discharge coefficient given to the simulated venturi (sim option venturi_c; invented)
+
+
+def _poppler(tool: str) -> str:
+    path = shutil.which(tool)
+    if path is None:
+        pytest.fail(f"{tool} not found: `make test` installs Debian's poppler-utils (tools/ensure-poppler)")
+    return path
+
+
+def pdf_text(pdf: Path, page: int | None = None) -> str:
+    args = [_poppler("pdftotext"), "-layout"]
+    if page is not None:
+        args += ["-f", str(page), "-l", str(page)]
+    return subprocess.run([*args, str(pdf), "-"], capture_output=True, text=True, check=True, timeout=120).stdout
+
+
+def pdf_pages(pdf: Path) -> int:
+    info = subprocess.run([_poppler("pdfinfo"), str(pdf)], capture_output=True, text=True, check=True).stdout
+    return int(re.search(r"^Pages:\s+(\d+)", info, re.M).group(1))
+
+
+def ink(png: Path) -> float:
+    """Fraction of a PNG's pixels that are not white (0 for a blank page)."""
+    from matplotlib.image import imread
+
+    img = imread(str(png))[..., :3]
+    return float(np.mean(np.any(img < 0.9, axis=-1)))
+
+
+def assert_no_blank_page(pdf: Path, tmp: Path) -> int:
+    subprocess.run([_poppler("pdftoppm"), "-r", "30", "-png", str(pdf), str(tmp / "page")], check=True, timeout=300)
+    pages = sorted(tmp.glob("page-*.png"))
+    assert len(pages) == pdf_pages(pdf)
+    for page in pages:
+        assert ink(page) > 0.01, f"{page.name} of {pdf.name} is blank"
+    return len(pages)
+
+
+def values(text: str) -> list[tuple[float, float, int]]:
+    """Every ``x ± u`` printed in ``text``: (x, u, decimals shown)."""
+    out = []
+    for m in re.finditer(r"(-?\d+(?:\.(\d+))?) ± (\d+(?:\.\d+)?)", text):
+        out.append((float(m.group(1)), float(m.group(3)), len(m.group(2) or "")))
+    return out
+
+
+def shown(text: str, value: float, u: float) -> bool:
+    """True when ``value ± u`` is printed in ``text`` to the digits shown (half the last digit)."""
+    return any(abs(x - value) <= 0.5 * 10**-d + 1e-12 and abs(e - u) <= 0.5 * 10**-d + 1e-12
+               for x, e, d in values(text))
+
+
+def handout(*argv) -> tuple[int, str, str]:
+    import contextlib
+    import io
+
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        try:
+            code = main(["handout", *map(str, argv)])
+        except SystemExit as exc:
+            code = exc.code
+    return code, out.getvalue(), err.getvalue()
+
+
+@pytest.fixture(scope="module")
+def sessions(tmp_path_factory) -> dict[str, Path]:
+    """One session per rig kind (the venturi twice: without and with a flow reference of its own)."""
+    d = tmp_path_factory.mktemp("sessions")
+    return {
+        "airfoil": sweep_session(d / "airfoil.taprig", "cambered-balance.toml", -4, 16, 2),
+        "venturi": fan_steps_session(d / "venturi.taprig", RIGS / "venturi-8.toml", (0.3, 0.5, 1.0)),
+        "venturi-pitot": fan_steps_session(d / "venturi-pitot.taprig", VENTURI_PITOT, (0.3, 0.4, 0.5),
+                                           query=f"venturi_c={SIM_C}"),
+        "cylinder": fan_steps_session(d / "cylinder.taprig", RIGS / "cylinder.toml", (0.4, 0.6, 1.0)),
+        "bump": fan_steps_session(d / "bump.taprig", RIGS / "bump-channel.toml", (0.5, 0.8)),
+    }
+
+
+HEADINGS = ("What the numbers rest on", "What they omit", "Ambient conditions", "Calibration", "The record",
+            "Safety", "Cp distribution of each point", "Points with their uncertainties", "The link's counters")
+KIND_HEADING = {"airfoil": "Lift curve, stall and hysteresis", "venturi": "Venturi: pressures, flow rate",
+                "venturi-pitot": "Discharge coefficient against Re_D", "cylinder": "Cp against angle beside potential",
+                "bump": "Cp along the model at every point"}
+
+
+@pytest.mark.parametrize("kind", list(KIND_HEADING))
+def test_every_rig_kind_renders_with_its_headings_and_no_blank_page(sessions, kind, tmp_path):
+    pdf = tmp_path / f"{kind}.pdf"
+    code, out, err = handout(sessions[kind], "-o", pdf)
+    assert code == 0, err
+    assert f"{pdf}: " in out and "Traceback" not in err
+    text = pdf_text(pdf)
+    for heading in (*HEADINGS, KIND_HEADING[kind]):
+        assert heading in text, f"{heading!r} missing from the {kind} handout"
+    assert assert_no_blank_page(pdf, tmp_path) >= 4
+
+
+def test_the_cover_and_the_table_print_the_sessions_own_numbers(sessions, tmp_path):
+    path = sessions["airfoil"]
+    pdf = tmp_path / "airfoil.pdf"
+    assert handout(path, "-o", pdf)[0] == 0
+    cover = pdf_text(pdf, 1)
+    with open_session(path) as s:
+        meta, summary = s.meta, s.summary()
+        records = [p.data for p in s._reader.points()]
+    # ambient conditions as stored with the session (SI in meta; hPa and °C on the page)
+    assert f"pressure {float(meta['ambient_pressure_pa']) / 100:.1f} hPa" in cover
+    assert f"temperature {float(meta['ambient_temperature_k']) - 273.15:.1f} °C" in cover
+    # the counters are a fresh decode of the file, as `taprig info` prints them
+    for name, words in (("crc_errors", "CRC errors"), ("gaps", "gaps"), ("scans_lost", "scans lost"),
+                        ("frames_lost", "frames lost")):
+        assert f"{words} {summary[name]}" in cover
+    assert f"scans {summary['scans']}" in cover and "The record is whole" in cover
+    # the reference-pressure assumption is the reducer's own sentence
+    assert summary["assumptions"][0].split(":")[0] in " ".join(cover.split())
+    # the table: q ± u(q) and Cl ± u(Cl) of every point as recorded
+    table = "\n".join(pdf_text(pdf, k) for k in range(1, pdf_pages(pdf) + 1))
+    for r in records:
+        assert shown(table, r["q_pa"], r["u_q_pa"]), f"q of {r['alpha_rad']} rad not printed as recorded"
+        c = r["shape"]
+        assert shown(table, c["cl"], c["u_cl"]), f"Cl of {r['alpha_rad']} rad not printed as recorded"
+    # the lift curve's numbers: the analysis of these records (GUM rounding, two significant digits of u)
+    with SessionReader(path) as reader:
+        from taprig.session.replay import rig_from_session
+
+        analysis = analyse_points(records, rig_from_session(reader))
+    lift = " ".join(pdf_text(pdf, 2).split())
+    fit, stall = analysis.fit, analysis.stall
+    assert pm(fit.slope_per_deg, fit.u_slope_scatter * math.pi / 180) in lift
+    assert f"Cl max {pm(stall.cl_max, stall.u_cl_max)} at α = {math.degrees(stall.alpha_cl_max):.1f}°" in lift
+    # the simulated NACA 2412 stalls within the sweep; the lift slope is near thin-airfoil 2π (within 15 %: a
+    # 9-tap model with walls; Anderson, Fundamentals of Aerodynamics, §4.7)
+    assert stall.stalled and "stall at" in lift
+    assert abs(fit.slope / (2 * math.pi) - 1) < 0.15
+
+
+def test_a_venturi_with_its_own_flow_reference_recovers_the_simulated_discharge_coefficient(sessions, tmp_path):
+    pdf = tmp_path / "v.pdf"
+    assert handout(sessions["venturi-pitot"], "-o", pdf)[0] == 0
+    text = " ".join(pdf_text(pdf, 2).split())
+    m = re.search(r"Discharge coefficient C = (\d\.\d+) ± (\d\.\d+)", text)
+    assert m, text[:2000]
+    c, u = float(m.group(1)), float(m.group(2))
+    assert abs(c - SIM_C) <= 2 * u  # the simulator was given C = 0.97 (invented); k = 2
+    assert "outside" in text and "Re_D" in text  # a teaching venturi runs below ISO 5167-4's Re_D range
+    # without a flow reference of its own, the page says why C is not measured instead of printing the assumption
+    pdf2 = tmp_path / "v2.pdf"
+    assert handout(sessions["venturi"], "-o", pdf2)[0] == 0
+    assert "C not measured" in " ".join(pdf_text(pdf2, 2).split())
+
+
+def _row(table: str, label: str) -> str:
+    rows = [line for line in table.splitlines() if line.strip().startswith(label)]
+    assert rows, f"no table row for {label!r}"
+    return rows[0]
+
+
+def test_points_in_a_state_show_the_state_and_no_number(sessions, tmp_path):
+    # At full blower the simulated venturi's throat sensor saturates: its reference goes, and the point is a
+    # state; at full fan the cylinder's shoulder taps saturate, the reducer leaves them out and q stands.
+    pdf = tmp_path / "v.pdf"
+    assert handout(sessions["venturi"], "-o", pdf)[0] == 0
+    with SessionReader(sessions["venturi"]) as r:
+        records = {p.kind: p.data for p in r.points()}
+    states = {label: point_state(rec, False) for label, rec in records.items()}
+    assert states["blower 0.3"] == "" and states["blower 1"] != ""
+    table = pdf_text(pdf, pdf_pages(pdf))
+    bad = _row(table, "blower 1")
+    assert states["blower 1"].upper() in bad and "±" not in bad
+    assert "±" in _row(table, "blower 0.3")
+    cover = " ".join(pdf_text(pdf, 1).split())
+    assert "1 of 3 points are in a state" in cover
+
+
+@pytest.mark.parametrize("record, failed, state", [
+    ({"flags": ["NO_FLOW"], "q_pa": 0.2, "v_ms": None, "plain": None}, False, "no flow"),
+    ({"flags": ["REFERENCE_INVALID"], "q_pa": None, "v_ms": None}, False, "reference invalid"),
+    ({"flags": ["BEYOND_RIG"], "q_pa": 9e4, "u_q_pa": 1.0, "v_ms": 300.0, "plain": {"cl": 0.3}}, False,
+     "implausible"),
+    ({"flags": ["SATURATED"], "q_pa": 200.0, "u_q_pa": None, "v_ms": 18.0}, False, "saturated"),
+    ({"flags": ["SATURATED", "DEGRADED"], "q_pa": 200.0, "u_q_pa": 1.0, "v_ms": 18.0, "plain": {"cl": 0.3}}, False,
+     ""),
+    ({"flags": [], "q_pa": 200.0, "u_q_pa": 1.0, "v_ms": 18.0, "plain": {"cl": 0.3}}, True, "bad calibration"),
+    ({"flags": ["NO_FLOW"], "q_pa": 200.0, "u_q_pa": 1.0, "v_ms": 18.0, "plain": {"cl": 0.3}}, False, ""),
+])
+def test_point_states(record, failed, state):
+    # DESIGN: no flow, invalid reference, saturation, implausible speed and failed calibration are states, not
+    # numbers; a point's NO_FLOW flag is the OR over its scans, so made coefficients say it had flow
+    assert point_state(record, failed) == state
+
+
+@pytest.mark.parametrize("value, u, text", [
+    (0.60543, 0.10149, "0.61 ± 0.10"),      # GUM §7.2.6: u to two significant digits, the value to match
+    (153.8136, 0.9734, "153.81 ± 0.97"),
+    (1234.5, 12.0, "1234 ± 12"),
+    (-0.00134, 0.000163, "-0.00134 ± 0.00016"),
+    (1.0, math.nan, None), (math.inf, 0.1, None), (None, 0.1, None),
+])
+def test_a_value_is_written_with_its_uncertainty_or_not_at_all(value, u, text):
+    assert pm(value, u) == text
+
+
+def test_png_writes_each_figure_alone(sessions, tmp_path):
+    folder = tmp_path / "figs"
+    code, out, err = handout(sessions["airfoil"], "--png", folder)
+    assert code == 0, err
+    files = sorted(folder.glob("*.png"))
+    names = {f.stem.removeprefix("airfoil-") for f in files}
+    with SessionReader(sessions["airfoil"]) as r:
+        n_points = len(r.points())
+    assert {"lift-curve", "drag-polar", "moment", "rig", "calibration"} <= names
+    assert sum(n.startswith("cp-") for n in names) == n_points
+    assert f"{len(files)} figures written" in out
+    for f in files:
+        assert ink(f) > 0.005, f"{f.name} is blank"
+
+
+def test_two_sessions_are_compared_aligned_by_alpha_or_q(sessions, tmp_path):
+    # the same model at two fan settings: two Reynolds numbers on one figure
+    other = sweep_session(tmp_path / "faster.taprig", "cambered-balance.toml", -4, 12, 4, seed=4, fan=1.0)
+    pdf = tmp_path / "both.pdf"
+    code, out, err = handout(sessions["airfoil"], other, "-o", pdf)
+    assert code == 0, err
+    page2 = pdf_text(pdf, 2)
+    assert "Sessions compared" in page2 and "aligned by angle of attack" in page2
+    assert "airfoil.taprig" in page2 and "faster.taprig" in page2
+    with open_session(other) as s:
+        re_values = [p.data["re"] for p in s._reader.points()]
+    assert f"Re ≈ {np.median(re_values):.3g}" in page2
+    one = tmp_path / "one.pdf"
+    assert handout(other, "-o", one)[0] == 0
+    first = tmp_path / "first.pdf"
+    assert handout(sessions["airfoil"], "-o", first)[0] == 0
+    assert pdf_pages(pdf) == pdf_pages(one) + pdf_pages(first) + 1
+    assert_no_blank_page(pdf, tmp_path)
+    by_q = tmp_path / "q.pdf"
+    assert handout(sessions["airfoil"], other, "-o", by_q, "--align", "q")[0] == 0
+    assert "aligned by dynamic pressure" in pdf_text(by_q, 2)
+    figs = tmp_path / "figs"
+    assert handout(sessions["airfoil"], other, "--png", figs)[0] == 0
+    assert (figs / "comparison.png").exists()
+
+
+def _one_line(err: str) -> str:
+    lines = [line for line in err.splitlines() if line.strip()]
+    assert len(lines) == 1 and "Traceback" not in err, err
+    return lines[0]
+
+
+def test_bad_inputs_give_one_clear_line(sessions, tmp_path):
+    missing = tmp_path / "nothing.taprig"
+    code, _, err = handout(missing, "-o", tmp_path / "x.pdf")
+    assert code == 2 and "nothing.taprig: no such file" in _one_line(err)
+    text = tmp_path / "notes.taprig"
+    text.write_text("not a session\n")
+    code, _, err = handout(text, "-o", tmp_path / "x.pdf")
+    assert code == 2 and "not a taprig session file" in _one_line(err)
+    code, _, err = handout(tmp_path, "-o", tmp_path / "x.pdf")
+    assert code == 2 and "folder" in _one_line(err)
+    assert not (tmp_path / "x.pdf").exists()
+
+
+def test_a_session_without_points_says_so(tmp_path):
+    empty = tmp_path / "empty.taprig"
+    assert main(["record", "--rig", str(RIGS / "cylinder.toml"), "--port", "sim://?seed=1&speed=max&watchdog_ms=0",
+                 "--duration", "0.5", "--no-dashboard", "--quiet", "-o", str(empty)]) == 0
+    code, _, err = handout(empty, "-o", tmp_path / "e.pdf")
+    assert code == 1 and "holds no points" in _one_line(err)
+    assert not (tmp_path / "e.pdf").exists()
+
+
+def test_an_existing_pdf_is_kept_unless_forced(sessions, tmp_path):
+    pdf = tmp_path / "keep.pdf"
+    pdf.write_bytes(b"mine")
+    code, _, err = handout(sessions["bump"], "-o", pdf)
+    assert code == 2 and "already exists" in _one_line(err) and pdf.read_bytes() == b"mine"
+    assert handout(sessions["bump"], "-o", pdf, "--force")[0] == 0 and pdf.read_bytes().startswith(b"%PDF")
+    code, _, err = handout(sessions["bump"], "-o", tmp_path / "h.txt")
+    assert code == 2 and ".pdf" in _one_line(err)
+    code, _, err = handout(sessions["bump"], "--align", "sideways")
+    assert code == 2 and "--align" in err and "Traceback" not in err
