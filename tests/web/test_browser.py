@@ -276,3 +276,34 @@ def test_a_venturi_bench_runs_from_the_page(browser, tmp_path):
     finally:
         page.close()
         assert "Traceback" not in end(live)
+
+
+def test_the_sessions_list_downloads_a_handout(browser, tmp_path):
+    # The handout button of the sessions list (review of a folder, with the view link: reading needs no control)
+    from tests.report.sessions import sweep_session
+
+    folder = tmp_path / "sessions"
+    folder.mkdir()
+    sweep_session(folder / "wing.taprig", "naca0012-20tap.toml", 0, 6, 2)
+    review = spawn("review", str(folder), "--no-browser", "--http-port", "0", cwd=tmp_path)
+    url = first_lines(review, 1)[0].split(": ", 1)[1]
+    page = Page(browser, url)
+    try:
+        page.until("() => document.querySelectorAll('#sessions tbody tr').length === 1")
+        assert "taprig handout" in page.text("#handout-note")
+        with page.page.expect_download(timeout=180_000) as download:
+            page.page.click("#sessions button.handout")
+        saved = tmp_path / "download.pdf"
+        download.value.save_as(saved)
+        assert download.value.suggested_filename == "wing-handout.pdf"
+        assert saved.read_bytes().startswith(b"%PDF")
+        text = subprocess.run([shutil.which("pdftotext") or "pdftotext", str(saved), "-"], capture_output=True,
+                              text=True, check=True).stdout
+        assert "What the numbers rest on" in text and "Points with their uncertainties" in text
+        page.until("() => document.getElementById('message').textContent.includes('downloaded')")
+        page.shot("handout-download")
+        # a folder-only server has no live display: the page's first ask for one is answered 404, then it lists
+        assert [e for e in page.errors if "status of 404" not in e] == [] and len(page.errors) <= 1
+    finally:
+        page.close()
+        assert "Traceback" not in end(review)

@@ -443,6 +443,20 @@ def save_pdf(pages, out: str | Path, contents: Sequence[SessionContent] = ()) ->
     return len(pages)
 
 
+def pdf_bytes(pages, contents: Sequence[SessionContent] = ()) -> bytes:
+    """``pages`` as the bytes of one PDF (for the dashboard's download)."""
+    import io
+
+    from matplotlib.backends.backend_pdf import PdfPages
+
+    buffer = io.BytesIO()
+    title = ", ".join(c.title for c in contents) or "taprig handout"
+    with PdfPages(buffer, metadata={"Title": f"Handout: {title}", "Creator": "taprig handout"}) as pdf:
+        for page in pages:
+            pdf.savefig(page)
+    return buffer.getvalue()
+
+
 def figures_of(c: SessionContent) -> list[Figure]:
     """The drawings of one session alone (for ``--png``)."""
     out = [Figure("rig", F.draw_rig), Figure("calibration", F.draw_calibration)]

@@ -362,6 +362,29 @@ def create_app(sources: Sources, keys: Keys, log: Callable[[str], None] | None =
             raise RequestProblem(str(exc).splitlines()[0], 409) from None
         return jsonify(ok=True, path=str(out), rows=getattr(result, "rows", None))
 
+    handout_lock = threading.Lock()
+
+    @app.get("/api/sessions/handout")
+    def handout():
+        """The PDF handout of one session of the folder (taprig.report), sent as a download; one at a time."""
+        from taprig.report import HandoutError, handout_pages
+        from taprig.report.content import load_session
+        from taprig.report.handout import pdf_bytes
+
+        need("view")
+        path = _session_path({"name": request.args.get("name", "")})
+        if not handout_lock.acquire(blocking=False):
+            raise RequestProblem("a handout is being written; try again in a moment", 429)
+        try:
+            content = load_session(path)
+            data = pdf_bytes(handout_pages([content]), [content])
+        except HandoutError as exc:
+            raise RequestProblem(str(exc), 409) from None
+        finally:
+            handout_lock.release()
+        return Response(data, mimetype="application/pdf", headers={
+            "Content-Disposition": f'attachment; filename="{path.stem}-handout.pdf"'})
+
     return app
 
 

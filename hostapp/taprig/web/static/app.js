@@ -547,6 +547,21 @@ function buildPlayback() {
   };
 }
 
+// The handout PDF of a session (taprig.report): fetched with the key in its header, saved as a download.
+async function downloadHandout(name, button) {
+  button.disabled = true; say(`writing the handout of ${name} …`);
+  try {
+    const resp = await fetch(`/api/sessions/handout?name=${encodeURIComponent(name)}`, { headers: { "X-Taprig-Key": key } });
+    if (!resp.ok) { const data = await resp.json().catch(() => ({})); throw new Error(data.error || `refused (${resp.status})`); }
+    const url = URL.createObjectURL(await resp.blob());
+    const a = document.createElement("a"); a.href = url; a.download = name.replace(/\.taprig$/, "") + "-handout.pdf";
+    document.body.appendChild(a); a.click(); a.remove();
+    setTimeout(() => URL.revokeObjectURL(url), 60000);
+    say(`handout of ${name} downloaded`);
+  } catch (e) { say(e.message.startsWith("Failed to fetch") ? "taprig does not answer (is it still running?)" : e.message, true); }
+  finally { button.disabled = false; }
+}
+
 async function loadSessions() {
   let data; try { data = await api("/api/sessions"); } catch (e) { say(e.message, true); return; }
   $("sessions-folder").textContent = data.folder;
@@ -566,6 +581,10 @@ async function loadSessions() {
         td.appendChild(b);
       }
       if (role !== "control") td.replaceChildren(open);
+      const pdf = document.createElement("button"); pdf.textContent = "Handout PDF"; pdf.className = "handout";
+      pdf.title = "download the session's handout: cover, lift curve or venturi page, Cp of every point, table";
+      pdf.onclick = () => downloadHandout(s.name, pdf);
+      td.appendChild(pdf);
     }
     tr.appendChild(td); tb.appendChild(tr);
   }
