@@ -218,3 +218,32 @@ def test_ambient_water_properties_follow_physics():
     # Tanaka et al. (2001) water density at 20 °C: 998.207 kg/m³ (docs/REFERENCES.md, CoolProp 998.2072).
     props = Ambient(temperature=293.15).properties("water")
     assert props.density == pytest.approx(998.2072, abs=2e-3) and math.isnan(props.speed_of_sound)
+
+
+@pytest.mark.parametrize("rig", ["airfoil", "venturi"])
+def test_values_only_mean_has_the_full_means_values_and_no_uncertainty(rig, make_block, airfoil_rig):
+    # A display takes the uncertainties from a full mean a few times a second; the values it shows in between must
+    # be the very numbers the full mean gives for the same scans (same code, so equal to the last bit).
+    if rig == "airfoil":
+        reducer = Reducer(parse_rig(airfoil_rig(TAPS, layout="differential"), "values.toml"))
+        base = np.array([250.0, -100.0, -300.0, 50.0, 20.0])
+    else:
+        reducer = Reducer(parse_rig(VENTURI, "venturi.toml"))
+        base = np.array([540.0, 500.0 - 15.0 * 40.0, 500.0 - 3.0 * 40.0])
+    p = base + np.random.default_rng(5).normal(0.0, 2.0, (300, base.size))
+    block = make_block(reducer, p)
+    full, values = reducer.reduce_mean(block, 0.05), reducer.reduce_mean(block, 0.05, uncertainties=False)
+    for name in ("p_pa", "cp") + (("cp_ideal",) if rig == "venturi" else ()):
+        assert np.array_equal(getattr(values, name), getattr(full, name), equal_nan=True)
+    for name in ("q_pa", "v_ms", "re", "mach", "alpha_rad", "flags", "used_scans", "lift_n", "mass_flow_kg_s",
+                 "excluded_taps", "scan_flag_counts"):
+        assert getattr(values, name) == getattr(full, name) or (math.isnan(getattr(full, name)) and
+                                                                 math.isnan(getattr(values, name)))
+    for which in ("plain", "shape", "corrected"):
+        a, b = getattr(values, which), getattr(full, which)
+        assert (a is None) == (b is None)
+        if b is not None:
+            assert (a.cl, a.cd_p, a.cm_qc) == (b.cl, b.cd_p, b.cm_qc) and math.isnan(a.u_cl)
+    assert full.uncertainty_method != values.uncertainty_method
+    assert np.isnan(values.u_cp).all() and np.isnan(values.u_p_pa).all() and math.isnan(values.u_q_pa)
+    assert values.u_mass_flow_kg_s is None and np.isfinite(full.u_cp).all()

@@ -174,17 +174,26 @@ def test_record_on_demand_capture_and_note_replay_as_recorded(live):
 
 
 def test_displayed_numbers_are_the_reducers_for_the_same_scans(live):
-    """The stream's Cl and q equal the reducer's mean of the very scans the update names, replayed from the record."""
+    """The stream's values equal the reducer's mean of the very scans the update names, and its uncertainties the
+    reducer's full mean of the scans it names for them, both replayed from the record."""
     live.post("/api/live/record-start")
     assert live.post("/api/live/setpoint", {"actuator": "fan", "value": 0.8}).status_code == 200
     assert live.post("/api/live/setpoint", {"actuator": "alpha", "value": 5}).status_code == 200
     wait_device_time(live.acq, 3.0, 30)
-    shown = [f for f in frames(live, 5) if f["reading"] and f["reading"]["state"] == "flow"][-1]["reading"]
+    live.station.budget_interval = 3600.0  # every update below takes its uncertainties from one earlier full mean
+    flowing = [f["reading"] for f in frames(live, 8) if f["reading"] and f["reading"]["state"] == "flow"]
     path = live.post("/api/live/record-stop").get_json()["path"]
-    mean = replayed_mean(path, shown["window"]["scan_index"], math.radians(5))
-    assert shown["flow"]["q_pa"][0] == mean.q_pa
-    assert shown["coefficients"]["cl"] == [mean.corrected.cl, mean.corrected.u_cl]
-    assert shown["taps"]["cp"] == [float(c) for c in mean.cp]
+    later = [r for r in flowing if r["uncertainty_window"]["scan_index"] != r["window"]["scan_index"]]
+    assert later, "no update took its uncertainties from an earlier window"
+    for shown in (flowing[0], later[-1]):
+        mean = replayed_mean(path, shown["window"]["scan_index"], math.radians(5))
+        full = replayed_mean(path, shown["uncertainty_window"]["scan_index"], math.radians(5))
+        assert shown["uncertainty_window"]["scan_index"][1] <= shown["window"]["scan_index"][1]
+        assert shown["flow"]["q_pa"] == [mean.q_pa, full.u_q_pa]
+        assert shown["coefficients"]["cl"] == [mean.corrected.cl, full.corrected.u_cl]
+        assert shown["taps"]["cp"] == [float(c) for c in mean.cp]
+        assert shown["taps"]["u_cp"] == [float(u) for u in full.u_cp]
+        assert shown["uncertainty_window"]["method"] == full.uncertainty_method
 
 
 def test_no_flow_is_shown_as_a_state_not_a_number(live):

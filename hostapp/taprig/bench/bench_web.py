@@ -133,12 +133,13 @@ def _viewer_figures(run: _Run, browser, seconds: float) -> list[Record]:
     for page in pages:
         page.wait_for_function("() => window.taprig && window.taprig.frames > 3", timeout=60000)
     shared = _cpu(seconds)
-    original = station_module.Frame.text
+    original = station_module.Frame.text, station_module.Frame.event
     station_module.Frame.text = lambda self: __import__("json").dumps(self.data, separators=(",", ":")).encode()
+    station_module.Frame.event = lambda self: b"data: " + self.text() + b"\n\n"
     try:
         naive = _cpu(seconds)
     finally:
-        station_module.Frame.text = original
+        station_module.Frame.text, station_module.Frame.event = original
     for page in pages:
         page.close()
     after = run.counters()

@@ -7,7 +7,7 @@ length), then the sequence accounting, then its type's body decoder. It never ra
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -47,8 +47,8 @@ class Counters:
     undecodable: int = 0
 
     def as_dict(self) -> dict[str, int]:
-        """Return the counters as a plain dict (field name → count)."""
-        return asdict(self)
+        """Return the counters as a plain dict (field name → count, in field order)."""
+        return dict(self.__dict__)  # ints only: a shallow copy is asdict's result without its recursion
 
 
 class StreamDecoder:

@@ -121,10 +121,9 @@ class ReducedBlock:
     def channel_flag_counts(self) -> dict[str, dict[str, int]]:
         """Per channel name, how many samples carry each :class:`ChannelFlag` (channels with none left out)."""
         out = {}
-        for col, name in enumerate(self.column_names):
-            counts = count_flags(self.channel_flags[:, col], ChannelFlag)
-            if counts:
-                out[name] = counts
+        flagged = np.bitwise_or.reduce(self.channel_flags, axis=0) if self.channel_flags.shape[0] else ()
+        for col in np.flatnonzero(flagged):  # only the columns with a flag need counting
+            out[self.column_names[col]] = count_flags(self.channel_flags[:, col], ChannelFlag)
         return out
 
     def to_columns(self) -> dict[str, np.ndarray]:

@@ -15,12 +15,16 @@ from taprig.reduce.flags import SCAN_FLAG_DTYPE, ScanFlag
 from taprig.reduce.layout import Contour
 
 
-def _integrate(contour: Contour, cp: np.ndarray, alpha: np.ndarray, keep: np.ndarray):
-    res = section_coefficients(contour.x_c[keep], contour.y_c[keep], cp[:, keep], alpha)
+def _integrate(contour: Contour, cp: np.ndarray, alpha: np.ndarray, keep: np.ndarray, weights=None):
+    if weights is None:
+        res = section_coefficients(contour.x_c[keep], contour.y_c[keep], cp[:, keep], alpha)
+    else:  # the same trapezoid weights, built once per set of taps
+        res = weights(tuple(np.flatnonzero(keep).tolist())).apply(cp if keep.all() else cp[:, keep], alpha)
     return np.asarray(res.cl, dtype=float), np.asarray(res.cd_p, dtype=float), np.asarray(res.cm_qc, dtype=float)
 
 
-def plain_coefficients(contour: Contour, cp: np.ndarray, tap_ok: np.ndarray, alpha: np.ndarray, min_taps: int):
+def plain_coefficients(contour: Contour, cp: np.ndarray, tap_ok: np.ndarray, alpha: np.ndarray, min_taps: int,
+                       weights=None):
     """Plain closed-contour trapezoid Cl, Cd_p, Cm_c/4 per scan over the usable taps.
 
     Parameters
@@ -35,6 +39,10 @@ def plain_coefficients(contour: Contour, cp: np.ndarray, tap_ok: np.ndarray, alp
         Angle of attack [rad].
     min_taps : int
         Fewest usable contour points for an integral.
+    weights : callable, optional
+        ``weights(keep)`` → the trapezoid's :class:`~taprig.physics.integration.SectionWeights` over the contour
+        points ``keep`` (a tuple of indices), memoised by the caller (:meth:`Reducer.plain_weights`); built here
+        on each call without it.
 
     Returns
     -------
@@ -48,7 +56,7 @@ def plain_coefficients(contour: Contour, cp: np.ndarray, tap_ok: np.ndarray, alp
     flags = np.zeros(n, dtype=SCAN_FLAG_DTYPE)
     everything = np.ones(ok.shape[1], dtype=bool)
     if n == 0 or ok.all():
-        return _integrate(contour, cpc, alpha, everything), flags
+        return _integrate(contour, cpc, alpha, everything, weights), flags
     out = tuple(np.full(n, np.nan) for _ in range(3))
     patterns, inverse = np.unique(ok, axis=0, return_inverse=True)
     inverse = inverse.reshape(-1)
@@ -59,6 +67,6 @@ def plain_coefficients(contour: Contour, cp: np.ndarray, tap_ok: np.ndarray, alp
         if np.count_nonzero(keep) < min_taps:
             flags[rows] |= SCAN_FLAG_DTYPE(ScanFlag.NO_INTEGRAL)
             continue
-        for target, value in zip(out, _integrate(contour, cpc[rows], alpha[rows], keep)):
+        for target, value in zip(out, _integrate(contour, cpc[rows], alpha[rows], keep, weights)):
             target[rows] = value
     return out, flags

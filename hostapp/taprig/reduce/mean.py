@@ -29,8 +29,8 @@ from taprig.physics.walls import WallCorrection, correct_2d
 from taprig.protocol import RawBlock
 from taprig.physics.venturi import venturi_expansibility_u_rel, venturi_flow_u_rel
 from taprig.rig import Medium, RigKind
-from taprig.reduce.block import frozen_array
-from taprig.reduce.flags import ScanFlag, count_flags, flag_names
+from taprig.reduce.block import ReducedBlock, frozen_array
+from taprig.reduce.flags import ChannelFlag, ScanFlag, count_flags, flag_names
 from taprig.reduce.layout import ColumnPlan
 from taprig.reduce.references import ONE, ReduceError
 
@@ -118,6 +118,10 @@ class ReducedMean:
         return flag_names(self.flags, ScanFlag)
 
 
+#: Channel flags that make a sample unusable (the reducer's own test: saturated or not finite).
+_UNUSABLE = int(ChannelFlag.SATURATED | ChannelFlag.NOT_FINITE)
+
+
 def _noise_covariance(p: np.ndarray, autocorrelated: bool) -> np.ndarray:
     """Type-A covariance of the column means, S / n_eff (GUM §4.2.3; n_eff per pair √(n_eff,i n_eff,j))."""
     n = p.shape[0]
@@ -152,11 +156,12 @@ def _combined(weights: np.ndarray, cov: np.ndarray) -> float:
 
 
 def coefficients_of(method: str, weights: SectionWeights, cp: np.ndarray, alpha: float, cov: np.ndarray,
-                    own: tuple[float, float, float] = (0.0, 0.0, 0.0)) -> Coefficients:
-    """Apply an affine integrator and carry the Cp covariance through its weights (own error in quadrature)."""
+                    own: tuple[float, float, float] = (0.0, 0.0, 0.0), uncertainties: bool = True) -> Coefficients:
+    """Apply an affine integrator and carry the Cp covariance through its weights (own error in quadrature);
+    ``uncertainties=False``: the values only, every uncertainty NaN."""
     res = weights.apply(cp, alpha)
     u_meas = (_combined(weights.cl(alpha), cov), _combined(weights.cd_p(alpha), cov),
-              _combined(weights.moment, cov))
+              _combined(weights.moment, cov)) if uncertainties else (float("nan"),) * 3
     u = [float(np.hypot(m, o)) for m, o in zip(u_meas, own)]
     return Coefficients(method, float(res.cl), float(res.cd_p), float(res.cm_qc), u[0], u[1], u[2], *own)
 
@@ -175,12 +180,15 @@ def wall_corrected(reducer, coeffs: Coefficients, alpha: float) -> tuple[Coeffic
     area = 0.5 * abs(float(np.dot(shape.x, np.roll(shape.y, -1)) - np.dot(shape.y, np.roll(shape.x, -1)))) * g.chord**2
     args = (g.chord, g.tunnel_height, g.tunnel_width, area, reducer.options.span_orientation)
     wc = correct_2d(coeffs.cl, alpha, coeffs.cm_qc, coeffs.cd_p, *args)
-    unit = correct_2d(1.0, alpha, 1.0, coeffs.cd_p, *args)  # the factors multiplying Cl_u and Cm_u
     cd_factor = float(wc.cd) / coeffs.cd_p if coeffs.cd_p else 1.0
+    if np.isnan([coeffs.u_cl, coeffs.u_cd_p, coeffs.u_cm_qc]).all():  # a values-only mean: nothing to scale
+        u = (float("nan"),) * 3
+    else:
+        unit = correct_2d(1.0, alpha, 1.0, coeffs.cd_p, *args)  # the factors multiplying Cl_u and Cm_u
+        u = (abs(float(unit.cl)) * coeffs.u_cl, abs(cd_factor) * coeffs.u_cd_p,
+             abs(1.0 - 2.0 * float(unit.total_blockage)) * coeffs.u_cm_qc)
     corrected = Coefficients(
-        f"{coeffs.method}+walls", float(wc.cl), float(wc.cd), float(wc.cm_quarter_chord),
-        abs(float(unit.cl)) * coeffs.u_cl, abs(cd_factor) * coeffs.u_cd_p,
-        abs(1.0 - 2.0 * float(unit.total_blockage)) * coeffs.u_cm_qc,
+        f"{coeffs.method}+walls", float(wc.cl), float(wc.cd), float(wc.cm_quarter_chord), *u,
         coeffs.integration_u_cl, coeffs.integration_u_cd_p, coeffs.integration_u_cm_qc,
     )
     return corrected, wc
@@ -242,28 +250,71 @@ def _dq_dp(reducer, plan: ColumnPlan, delta: np.ndarray, q: float) -> np.ndarray
     return -n[ven.throat] * (q / differential) if differential > 0 else np.zeros(plan.scale.size)
 
 
-def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> ReducedMean:
+#: What a mean computed with ``uncertainties=False`` states as its uncertainty method.
+VALUES_ONLY = "not computed (values only)"
+
+
+def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None, uncertainties: bool = True) -> ReducedMean:
     """Mean of ``block`` with uncertainties, both integrators and wall corrections (see the module docstring).
 
     Scans whose reference channels are unusable are left out of the mean; a tap with any unusable sample in the
     remaining scans is left out of the integrals (``excluded_taps``, flag DEGRADED).
+
+    ``uncertainties=False`` computes the values only (the same numbers, by the same code, as with them) and leaves
+    every uncertainty NaN (``u_mass_flow_kg_s`` None, ``uncertainty_method`` :data:`VALUES_ONLY`): the type-A
+    covariance with its serial correlation, its propagation and the integrators' own error estimates are most of
+    a mean's cost, and a display refreshing many times a second can take them from a recent full mean.
     """
     plan = reducer.plan(block.channels)
     counts = np.asarray(block.counts, dtype=float)
     if counts.ndim != 2 or counts.shape[1] != len(plan.channels) or counts.shape[0] == 0:
         raise ReduceError(f"block counts have shape {counts.shape}; expected (scans ≥ 1, {len(plan.channels)})")
     alpha = float(reducer.alpha_array(alpha_rad, 1)[0])
-    p, channel_flags, unusable = reducer.pressures(plan, counts)
+    return _mean_of(reducer, plan, reducer.reduce(block, alpha), alpha, uncertainties)
+
+
+def mean_of_reduced(reducer, blocks: list[ReducedBlock], alpha_rad: float | None = None,
+                    uncertainties: bool = True) -> ReducedMean:
+    """:func:`reduce_mean` of the scans of ``blocks``, already reduced by ``reducer`` at ``alpha_rad`` (a live
+    run's reduction thread has reduced every chunk): the same numbers as :func:`reduce_mean` of their raw scans,
+    since reduction is row by row, without reducing them again. ReduceError unless every scan was reduced at
+    that angle and the blocks share one channel set."""
+    if not blocks:
+        raise ReduceError("a mean needs at least one block of scans")
+    plan = reducer.plan(blocks[0].channels)
+    alpha = float(reducer.alpha_array(alpha_rad, 1)[0])
+    joined = blocks[0] if len(blocks) == 1 else _Reduced(
+        np.concatenate([b.t_ns for b in blocks]), np.concatenate([b.p_pa for b in blocks]),
+        np.concatenate([b.channel_flags for b in blocks]), np.concatenate([b.scan_flags for b in blocks]),
+        np.concatenate([b.alpha_rad for b in blocks]))
+    if any(b.channels != plan.channels for b in blocks) or np.any(joined.alpha_rad != alpha):
+        raise ReduceError("these blocks were not all reduced with one channel set at this angle")
+    return _mean_of(reducer, plan, joined, alpha, uncertainties)
+
+
+@dataclass(frozen=True, eq=False)
+class _Reduced:
+    """What a mean uses of reduced scans (a :class:`ReducedBlock`'s fields of those names)."""
+
+    t_ns: np.ndarray
+    p_pa: np.ndarray
+    channel_flags: np.ndarray
+    scan_flags: np.ndarray
+    alpha_rad: np.ndarray
+
+
+def _mean_of(reducer, plan: ColumnPlan, reduced, alpha: float, uncertainties: bool) -> ReducedMean:
+    """The mean of reduced scans (``t_ns``, ``p_pa``, ``channel_flags``, ``scan_flags``): see :func:`reduce_mean`."""
+    p, scan_flags = reduced.p_pa, reduced.scan_flags
+    n_scans = p.shape[0]
+    unusable = (reduced.channel_flags & _UNUSABLE) != 0  # the reducer's own mask: saturated or not finite
     ref_ok = ~np.any(unusable[:, plan.reference_columns], axis=1) if plan.reference_columns.size else \
-        np.ones(counts.shape[0], dtype=bool)
-    scan_flags = reducer.reduce(block, alpha).scan_flags
+        np.ones(n_scans, dtype=bool)
     flags = int(np.bitwise_or.reduce(scan_flags[ref_ok])) if ref_ok.any() else int(ScanFlag.REFERENCE_INVALID)
     used = p[ref_ok]
     column_bad = np.any(unusable[ref_ok], axis=0) if used.shape[0] else np.ones(p.shape[1], dtype=bool)
     clean = np.where(column_bad, 0.0, used)
     p_mean = np.where(column_bad, np.nan, clean.mean(axis=0)) if used.shape[0] else np.full(p.shape[1], np.nan)
-    cov_p = _noise_covariance(clean, reducer.options.autocorrelated_noise) + _systematic_covariance(plan, p_mean)
-    cov_p[column_bad, :] = cov_p[:, column_bad] = 0.0
     cp, q, tap_ok, mean_flags = reducer.pressure_coefficients(plan, p_mean[None, :], column_bad[None, :])
     cp, q, tap_ok = cp[0], float(q[0]), tap_ok[0]
     flags |= int(mean_flags[0])
@@ -271,7 +322,11 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
     v, re, mach = (float(x[0]) for x in reducer.flow(np.array([q]), p_inf))
     flags |= int(reducer.plausibility_flags(plan, np.array([q]), np.array([v]), np.array([mach]))[0])
     usable_q = np.isfinite(cp).any()
-    if usable_q:
+    cov_p = None
+    if uncertainties:
+        cov_p = _noise_covariance(clean, reducer.options.autocorrelated_noise) + _systematic_covariance(plan, p_mean)
+        cov_p[column_bad, :] = cov_p[:, column_bad] = 0.0
+    if uncertainties and usable_q:
         dq = _dq_dp(reducer, plan, plan.taps.evaluate(p_mean[None, :])[0], q)
         cov_cp = propagate_covariance(cp_jacobian(plan, cp, q, dq), cov_p)
         cov_cp += _static_factor_covariance(reducer.layout)
@@ -284,7 +339,7 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
     else:
         cov_cp = np.full((cp.size, cp.size), np.nan)
         u_q = float("nan")
-    plain, shape, excluded, integral_flags = _integrals(reducer, cp, tap_ok, alpha, cov_cp)
+    plain, shape, excluded, integral_flags = _integrals(reducer, cp, tap_ok, alpha, cov_cp, uncertainties)
     flags |= integral_flags
     default = shape if shape is not None else plain
     corrected, wall = wall_corrected(reducer, default, alpha) if default is not None else (None, None)
@@ -294,11 +349,12 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
     mass = reducer.venturi_flow(cp[None, :], np.array([q]), p_mean[None, :], plan)[0] \
         if reducer.layout.venturi is not None else None
     u_mass = venturi_mass_flow_u(reducer, plan, p_mean, cov_p, float(mass)) \
-        if mass is not None and np.isfinite(mass) and usable_q else None
+        if mass is not None and np.isfinite(mass) and usable_q and uncertainties else None
+    u_p = np.sqrt(np.diag(cov_p)) if cov_p is not None else np.full(p_mean.size, np.nan)
     return ReducedMean(
-        n_scans=counts.shape[0], used_scans=int(ref_ok.sum()),
-        t_ns=(int(block.t_ns[0]), int(block.t_ns[-1])), tap_names=reducer.tap_names,
-        column_names=plan.column_names, p_pa=p_mean, u_p_pa=np.sqrt(np.diag(cov_p)), cp=cp,
+        n_scans=n_scans, used_scans=int(ref_ok.sum()),
+        t_ns=(int(reduced.t_ns[0]), int(reduced.t_ns[-1])), tap_names=reducer.tap_names,
+        column_names=plan.column_names, p_pa=p_mean, u_p_pa=u_p, cp=cp,
         u_cp=np.sqrt(np.diag(cov_cp)), cov_cp=cov_cp, q_pa=q, u_q_pa=u_q, v_ms=v, re=re, mach=mach,
         alpha_rad=alpha, plain=plain, shape=shape, corrected=corrected, wall=wall, flags=flags,
         excluded_taps=excluded,
@@ -309,11 +365,13 @@ def reduce_mean(reducer, block: RawBlock, alpha_rad: float | None = None) -> Red
         scan_flag_counts=count_flags(scan_flags, ScanFlag),
         assumptions=reducer.assumptions, reference_note=reducer.reference_note,
         calibration_warning=reducer.calibration_warning,
+        **({} if uncertainties else {"uncertainty_method": VALUES_ONLY}),
     )
 
 
-def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp: np.ndarray):
-    """Plain and shape-aware coefficients of the mean Cp over the usable taps."""
+def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp: np.ndarray,
+               uncertainties: bool = True):
+    """Plain and shape-aware coefficients of the mean Cp over the usable taps (values only: own errors NaN)."""
     contour = reducer.layout.contour
     if contour is None:
         return None, None, (), 0
@@ -325,14 +383,20 @@ def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp
     cols = contour.columns[keep]
     cpk, covk = cp[cols], cov_cp[np.ix_(cols, cols)]
     xk, yk = contour.x_c[keep], contour.y_c[keep]
-    plain = coefficients_of("plain", trapezoid_weights(xk, yk), cpk, alpha, covk,
-                            trapezoid_error_estimate(xk, yk, cpk, alpha))
-    fit = reducer.shape_integrator(tuple(np.flatnonzero(keep)))
+    kept = tuple(np.flatnonzero(keep).tolist())
+    unknown = (float("nan"),) * 3
+    plain = coefficients_of("plain", reducer.plain_weights(kept), cpk, alpha, covk,
+                            trapezoid_error_estimate(xk, yk, cpk, alpha) if uncertainties else unknown,
+                            uncertainties)
+    fit = reducer.shape_integrator(kept)
     if fit is None:
         return plain, None, names, flags
-    result = fit.integrate(cpk, alpha)
-    own = (float(result.u_cl), float(result.u_cd_p), float(result.u_cm_qc))
-    return plain, coefficients_of("shape", fit.weights, cpk, alpha, covk, own), names, flags
+    if uncertainties:
+        result = fit.integrate(cpk, alpha)
+        own = (float(result.u_cl), float(result.u_cd_p), float(result.u_cm_qc))
+    else:
+        own = unknown
+    return plain, coefficients_of("shape", fit.weights, cpk, alpha, covk, own, uncertainties), names, flags
 
 
 def balance_cl_u(lift_n: float, u_lift_n: float, cl_balance: float, q_pa: float, u_q_pa: float) -> float | None:

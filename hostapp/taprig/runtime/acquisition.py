@@ -146,8 +146,12 @@ class _Window:
         if not self.blocks:
             return None
         newest = self.blocks[-1].t_ns[-1]
-        chosen = [b for b in self.blocks if newest - b.t_ns[0] <= seconds * 1e9]
-        return RawBlock.concat(chosen or [self.blocks[-1]])
+        chosen = []
+        for b in reversed(self.blocks):  # newest first: stop at the first block that began too early
+            if newest - b.t_ns[0] > seconds * 1e9:
+                break
+            chosen.append(b)
+        return RawBlock.concat(chosen[::-1] or [self.blocks[-1]])
 
 
 class Acquisition:
@@ -183,6 +187,9 @@ class Acquisition:
         self.device_state: DeviceState | None = None  # from the board's latest STATUS
         self._window = _Window(window_s)
         self._window_lock = threading.Lock()
+        # The newest reduced blocks with what reduced them (reducer, angle): the display's means reuse them
+        self._reduced: deque = deque()
+        self._reduced_lock = threading.Lock()
         self._work: queue.Queue = queue.Queue(maxsize=reduce_backlog)
         self._stop = threading.Event()
         self._thread = threading.Thread(target=self._run_reduction, name="taprig-reduction", daemon=True)
@@ -476,6 +483,36 @@ class Acquisition:
         with self._window_lock:
             return self._window.last(seconds)
 
+    def recent_reduced(self, seconds: float) -> tuple[Reducer, float | None, list[ReducedBlock]] | None:
+        """The newest reduced blocks covering the last ``seconds`` of device time, all reduced by one reducer at
+        one angle and in an unbroken run of scans, with that reducer and angle; None when there are none such (a
+        calibration or angle changed within them, or reduction skipped a chunk)."""
+        with self._reduced_lock:
+            if not self._reduced:
+                return None
+            reducer, alpha, newest = self._reduced[-1]
+            first_ns = int(newest.t_ns[-1]) - seconds * 1e9
+            chosen = []
+            for r, a, block in reversed(self._reduced):
+                if block.t_ns[0] < first_ns:
+                    break
+                if r is not reducer or a != alpha or (chosen and block.scan_index[-1] + 1 != chosen[-1].scan_index[0]):
+                    return None
+                chosen.append(block)
+        return (reducer, alpha, chosen[::-1]) if chosen else None
+
+    def _keep_reduced(self, reducer: Reducer, alpha: float | None, block: ReducedBlock) -> None:
+        """Keep ``block`` among the newest reduced blocks (about the last two seconds of device time)."""
+        if block.n_scans == 0:
+            return
+        with self._reduced_lock:
+            kept = self._reduced
+            if kept and block.t_ns[0] < kept[-1][2].t_ns[-1]:
+                kept.clear()  # device time went back: the board restarted, older scans are another stream
+            kept.append((reducer, alpha, block))
+            while len(kept) > 1 and block.t_ns[-1] - kept[0][2].t_ns[-1] > 2e9:
+                kept.popleft()
+
     def check_flow(self, seconds: float = 0.5) -> None:
         """Raise :class:`AcquisitionError` unless most scans of the last ``seconds`` have flow (q above no-flow).
 
@@ -653,6 +690,7 @@ class Acquisition:
             for item in items:
                 if isinstance(item, RawBlock):
                     latest = reducer.reduce(item, alpha_rad=alpha)
+                    self._keep_reduced(reducer, alpha, latest)
                     if self.on_block is not None:
                         self.on_block(host_ns, latest)
                 elif isinstance(item, Log) and not self.halted.is_set():

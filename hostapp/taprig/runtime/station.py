@@ -7,7 +7,9 @@ and the stop that sends every actuator to its safe value. It computes nothing it
 
 Display updates are made on one thread, at most ``max_rate_hz`` a second and only while someone watches, from the
 mean of the newest ``window_s`` of scans; every viewer gets the same :class:`Frame` (serialised once), latest
-wins. A slow viewer misses updates; the acquisition and the record never wait for a viewer.
+wins. A slow viewer misses updates; the acquisition and the record never wait for a viewer. The uncertainty budget
+of a mean costs several times its values, so it is made a few times a second (``budget_rate_hz``) and each update
+names the window its uncertainties belong to (see :meth:`Display._uncertainties`).
 """
 
 from __future__ import annotations
@@ -27,7 +29,7 @@ from taprig.reduce import ReduceError, ScanFlag
 from taprig.analysis import find_stall, linear_range_fit
 from taprig.runtime.acquisition import Acquisition, AcquisitionError, LiveState
 from taprig.runtime.hub import Hub
-from taprig.runtime.viewframe import (actuator_value_from_operator, num, point_summary, reading,
+from taprig.runtime.viewframe import (actuator_value_from_operator, flow_state, num, point_summary, reading,
                                       rig_description)
 from taprig.session.store import SessionWriter
 
@@ -35,16 +37,32 @@ from taprig.session.store import SessionWriter
 TREND_SECONDS = 300.0   # how far back the trend plot reaches
 TREND_RATE_HZ = 5.0     # trend samples per second kept for it
 DISPLAY_CPU_SHARE = 0.25  # the most of one core that display updates may take (their rate drops before that)
+BUDGET_RATE_HZ = 4.0    # full means (with the uncertainty budget) a second; display updates between take their u
+BUDGET_Q_CHANGE = 0.1   # a full mean describes later windows' uncertainties while q is within 10 % (or 2 u(q)) of its own
+
+
+def _described_by(mean, full) -> bool:
+    """Whether the full mean ``full``'s uncertainties still describe the values-only ``mean`` (see
+    :meth:`Display._uncertainties`)."""
+    if flow_state(mean)[0] != flow_state(full)[0] or mean.excluded_taps != full.excluded_taps:
+        return False
+    if not np.array_equal(np.isfinite(mean.cp), np.isfinite(full.cp)):
+        return False
+    if math.isfinite(mean.q_pa) and math.isfinite(full.q_pa) and math.isfinite(full.u_q_pa):
+        # Cp's and the coefficients' uncertainties scale with 1/q: q may move by a tenth, or within its own noise
+        return abs(mean.q_pa - full.q_pa) <= max(BUDGET_Q_CHANGE * abs(full.q_pa), 2.0 * full.u_q_pa)
+    return math.isfinite(mean.q_pa) == math.isfinite(full.q_pa) and not math.isfinite(full.u_q_pa)
 
 
 class Frame:
     """One display update: its data and, made once on first use and shared by every viewer, its JSON text."""
 
-    __slots__ = ("data", "_text", "_lock")
+    __slots__ = ("data", "_text", "_event", "_lock")
 
     def __init__(self, data: dict):
         self.data = data
         self._text: bytes | None = None
+        self._event: bytes | None = None
         self._lock = threading.Lock()
 
     def text(self) -> bytes:
@@ -53,6 +71,12 @@ class Frame:
             if self._text is None:
                 self._text = json.dumps(self.data, separators=(",", ":"), allow_nan=False).encode()
             return self._text
+
+    def event(self) -> bytes:
+        """The update as one Server-Sent Event, ``data: <JSON>`` and a blank line (made once for all viewers)."""
+        if self._event is None:
+            self._event = b"data: " + self.text() + b"\n\n"
+        return self._event
 
 
 @dataclass
@@ -73,10 +97,13 @@ class Display:
     (what else the page shows: link, setpoints, recording, sweep or playback).
     """
 
-    def __init__(self, source, window_s: float = 0.25, max_rate_hz: float = 25.0):
+    def __init__(self, source, window_s: float = 0.25, max_rate_hz: float = 25.0,
+                 budget_rate_hz: float = BUDGET_RATE_HZ):
         self.source = source
         self.window_s = window_s
         self.min_interval = 1.0 / max_rate_hz
+        self.budget_interval = 1.0 / budget_rate_hz
+        self._budget: tuple | None = None  # ((reducer, alpha, full mean, its scans), monotonic time it was made)
         self.frames: Hub[Frame] = Hub(history_len=1)
         self.notices: list[dict] = []  # what the operator was told, newest last (bounded)
         self.points: list[dict] = []  # captured points (viewframe.point_summary), in capture order
@@ -167,7 +194,11 @@ class Display:
                 due = start + max(self.min_interval, cost / DISPLAY_CPU_SHARE)
 
     def frame(self, state: LiveState | None) -> Frame:
-        """The display update for ``state``: the mean of the newest window of scans, and :meth:`status`."""
+        """The display update for ``state``: the mean of the newest window of scans, and :meth:`status`.
+
+        The values are the reducer's mean of the newest window; their uncertainties are those of the newest full
+        mean (:meth:`_uncertainties`), whose own window the update names (``reading.uncertainty_window``).
+        """
         src = self.source
         self._seq += 1
         reducer = src.reducer
@@ -176,13 +207,57 @@ class Display:
                 "calibration_warning": reducer.calibration_warning, **self.status(state)}
         with self._lock:
             data["trend"] = self.trend[-1] if self.trend else None
-        block = src.recent(self.window_s)
-        if state is not None and state.block is not None and block is not None and block.n_scans >= 2:
-            mean = reducer.reduce_mean(block, alpha_rad=src.alpha_rad)
-            data["reading"] = reading(reducer, mean, state.block.channel_flag_counts(),
-                                      (int(block.scan_index[0]), int(block.scan_index[-1])), src.alpha_rad is not None)
+        if state is not None and state.block is not None:
+            window = self._window(src, reducer)
+            if window is not None:
+                mean_of, scans, reducer, alpha = window
+                mean, (budget, budget_scans) = self._uncertainties(mean_of, reducer, scans, alpha)
+                data["reading"] = reading(reducer, mean, state.block.channel_flag_counts(), scans,
+                                          src.alpha_rad is not None, uncertainty=budget,
+                                          uncertainty_scan_index=budget_scans)
         data["sent_ns"] = time.time_ns()
         return Frame(data)
+
+    def _window(self, src, reducer) -> tuple | None:
+        """The newest ``window_s`` of scans as ``(mean_of, scans, reducer, alpha)``: ``mean_of(uncertainties)``
+        makes their mean, ``scans`` are their first and last scan index.
+
+        A live run's reduction thread has reduced them already (with the calibration and angle in force when each
+        chunk arrived): where one reducer at one angle reduced them all, their mean is made from those reductions,
+        with the same numbers as from the raw scans; else from the raw scans with the reducer and angle now.
+        """
+        reduced = src.recent_reduced(self.window_s) if hasattr(src, "recent_reduced") else None
+        if reduced is not None and sum(b.n_scans for b in reduced[2]) >= 2:
+            by, alpha, blocks = reduced
+            scans = (int(blocks[0].scan_index[0]), int(blocks[-1].scan_index[-1]))
+            return (lambda u: by.mean_of_reduced(blocks, alpha_rad=alpha, uncertainties=u)), scans, by, alpha
+        block = src.recent(self.window_s)
+        if block is None or block.n_scans < 2:
+            return None
+        alpha = src.alpha_rad
+        scans = (int(block.scan_index[0]), int(block.scan_index[-1]))
+        return (lambda u: reducer.reduce_mean(block, alpha_rad=alpha, uncertainties=u)), scans, reducer, alpha
+
+    def _uncertainties(self, mean_of, reducer, scans: tuple[int, int], alpha_rad) -> tuple:
+        """``(mean, (full, its scans))``: the mean ``mean_of(uncertainties)`` of the window of scans ``scans``
+        and the newest full mean (with uncertainties) to take them from, with the first and last scan index of
+        its window.
+
+        A full mean (the GUM budget: most of a mean's cost) is made at most ``budget_rate_hz`` a second; between
+        them the values alone are computed and take the uncertainties of the newest full mean, as long as it still
+        describes them: same reducer (calibration) and angle, same flow state, same taps left out and q within
+        ``BUDGET_Q_CHANGE`` of its own (or within twice its uncertainty, near no flow). Otherwise a full mean of this
+        window is made now.
+        """
+        full, made = self._budget if self._budget is not None else (None, 0.0)
+        now = time.monotonic()
+        if full is not None and now - made < self.budget_interval and full[0] is reducer and full[1] == alpha_rad:
+            mean = mean_of(False)
+            if _described_by(mean, full[2]):
+                return mean, (full[2], full[3])
+        mean = mean_of(True)
+        self._budget = ((reducer, alpha_rad, mean, scans), now)
+        return mean, (mean, scans)
 
     def close(self) -> None:
         """Stop the display thread."""

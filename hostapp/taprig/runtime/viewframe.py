@@ -26,7 +26,11 @@ def num(x) -> float | None:
 
 def nums(values) -> list:
     """A list of :func:`num` of each value."""
-    return [num(v) for v in np.asarray(values, dtype=float).ravel()]
+    arr = np.asarray(values, dtype=float).ravel()
+    out = arr.tolist()
+    if not np.isfinite(arr).all():
+        out = [v if math.isfinite(v) else None for v in out]
+    return out
 
 
 def pair(value, u) -> list | None:
@@ -57,6 +61,9 @@ def flow_state(mean: ReducedMean) -> tuple[str, str]:
     return "flow", ""
 
 
+_SATURATED, _OUT_OF_RANGE = ChannelFlag.SATURATED.name, ChannelFlag.OUT_OF_RANGE.name
+
+
 def tap_states(mean: ReducedMean, channel_flag_counts: dict[str, dict[str, int]]) -> list:
     """Per tap (Cp order): "ok", "saturated", "out of range", "left out" or "no value".
 
@@ -65,10 +72,10 @@ def tap_states(mean: ReducedMean, channel_flag_counts: dict[str, dict[str, int]]
     out = []
     col = {name: i for i, name in enumerate(mean.column_names)}
     for name in mean.tap_names:
-        flags = channel_flag_counts.get(name, {})
-        if ChannelFlag.SATURATED.name in flags:
+        flags = channel_flag_counts.get(name, ())
+        if _SATURATED in flags:
             out.append("saturated")
-        elif ChannelFlag.OUT_OF_RANGE.name in flags:
+        elif _OUT_OF_RANGE in flags:
             out.append("out of range")
         elif name in mean.excluded_taps:
             out.append("left out")
@@ -79,70 +86,95 @@ def tap_states(mean: ReducedMean, channel_flag_counts: dict[str, dict[str, int]]
     return out
 
 
-def coefficients(mean: ReducedMean) -> dict | None:
-    """The coefficients to show (wall-corrected shape fit where available) with uncertainties and method."""
-    best = mean.corrected or mean.default
+def coefficients(mean: ReducedMean, u: ReducedMean | None = None) -> dict | None:
+    """The coefficients to show (wall-corrected shape fit where available) with uncertainties and method.
+
+    ``u``: the mean whose uncertainties are shown (default ``mean`` itself; see :func:`reading`).
+    """
+    u = mean if u is None else u
+    best, u_best = mean.corrected or mean.default, u.corrected or u.default
     if best is None:
         return None
-    return {"method": best.method, "cl": pair(best.cl, best.u_cl), "cd_p": pair(best.cd_p, best.u_cd_p),
-            "cm_qc": pair(best.cm_qc, best.u_cm_qc),
-            "integration_u_cl": num(best.integration_u_cl), "walls": mean.corrected is not None,
+    if u_best is None or u_best.method != best.method:
+        u_best = None
+    nan = math.nan
+    return {"method": best.method, "cl": pair(best.cl, u_best.u_cl if u_best else nan),
+            "cd_p": pair(best.cd_p, u_best.u_cd_p if u_best else nan),
+            "cm_qc": pair(best.cm_qc, u_best.u_cm_qc if u_best else nan),
+            "integration_u_cl": num(u_best.integration_u_cl) if u_best else None, "walls": mean.corrected is not None,
             "alpha_corrected_deg": num(math.degrees(mean.wall.alpha)) if mean.wall is not None else None,
             "plain_cl": num(mean.plain.cl) if mean.plain is not None else None}
 
 
-def flow_numbers(mean: ReducedMean, density: float) -> dict:
-    """q, V, Re, Mach and ρ with uncertainties where the reduction gives them.
+def flow_numbers(mean: ReducedMean, density: float, u: ReducedMean | None = None) -> dict:
+    """q, V, Re, Mach and ρ with uncertainties where the reduction gives them (``u``: the mean whose
+    uncertainties are shown, default ``mean``).
 
     u(V)/V = u(q)/(2q) and u(Re)/Re = u(V)/V to first order (V = √(2q/ρ); the fluid properties' own uncertainty
     is not included: JCGM 100:2008 §5.1.2 with ρ and ν held fixed).
     """
-    rel = mean.u_q_pa / (2.0 * mean.q_pa) if mean.q_pa and math.isfinite(mean.u_q_pa) else math.nan
-    return {"q_pa": pair(mean.q_pa, mean.u_q_pa), "v_ms": pair(mean.v_ms, abs(rel) * mean.v_ms),
-            "re": pair(mean.re, abs(rel) * mean.re), "mach": num(mean.mach), "rho": num(density)}
+    u = mean if u is None else u
+    rel = u.u_q_pa / (2.0 * u.q_pa) if u.q_pa and math.isfinite(u.u_q_pa) else math.nan
+    return {"q_pa": pair(mean.q_pa, u.u_q_pa), "v_ms": pair(mean.v_ms, abs(rel) * u.v_ms),
+            "re": pair(mean.re, abs(rel) * u.re), "mach": num(mean.mach), "rho": num(density)}
 
 
 def reading(reducer, mean: ReducedMean, channel_flag_counts: dict, scan_index: tuple[int, int],
-            angle_known: bool = True) -> dict:
+            angle_known: bool = True, uncertainty: ReducedMean | None = None,
+            uncertainty_scan_index: tuple[int, int] | None = None) -> dict:
     """The numbers of one display update from the mean of the newest window of scans (see the module docstring).
 
     ``angle_known``: the run knows the angle of attack (an angle actuator's setpoint); else α is not shown.
+    ``uncertainty``: the full mean whose uncertainties are shown beside ``mean``'s values (default ``mean``
+    itself, which must then carry them): a display takes them from a recent full mean of the same run, and names
+    its window (``uncertainty_window``, scans ``uncertainty_scan_index``) so that every uncertainty shown can be
+    traced to the scans it describes.
     """
+    u = mean if uncertainty is None else uncertainty
+    if uncertainty is None or uncertainty_scan_index is None:
+        uncertainty_scan_index = scan_index
     state, why = flow_state(mean)
     flowing = state == "flow"
-    flow = flow_numbers(mean, reducer.fluid.density) if flowing else \
-        {"q_pa": pair(mean.q_pa, mean.u_q_pa), "rho": num(reducer.fluid.density)}
+    flow = flow_numbers(mean, reducer.fluid.density, u) if flowing else \
+        {"q_pa": pair(mean.q_pa, u.u_q_pa), "rho": num(reducer.fluid.density)}
     flow["alpha_deg"] = num(math.degrees(mean.alpha_rad)) if angle_known else None
     out = {
         "window": {"t_ns": list(mean.t_ns), "scan_index": list(scan_index), "scans": mean.n_scans,
                    "used": mean.used_scans},
+        "uncertainty_window": {"t_ns": list(u.t_ns), "scan_index": list(uncertainty_scan_index),
+                               "scans": u.n_scans, "used": u.used_scans,
+                               "method": u.uncertainty_method},
         "state": state, "why": why, "flags": list(mean.flag_names),
         "flow": flow,
-        "taps": {"p_pa": _tap_pressures(reducer, mean), "cp": nums(mean.cp) if flowing else None,
-                 "u_cp": nums(mean.u_cp) if flowing else None,
+        "taps": {"p_pa": _tap_pressures(reducer, mean, u), "cp": nums(mean.cp) if flowing else None,
+                 "u_cp": nums(u.u_cp) if flowing else None,
                  "state": tap_states(mean, channel_flag_counts)},
-        "coefficients": coefficients(mean) if flowing else None,
+        "coefficients": coefficients(mean, u) if flowing else None,
         "fit": None, "balance": None, "venturi": None,
     }
     if flowing:
         curve = shape_fit_curve(reducer, mean)
         if curve is not None:
-            out["fit"] = {"x": nums(curve.x), "cp": nums(curve.y), "upper": [bool(u) for u in curve.upper]}
+            out["fit"] = {"x": nums(curve.x), "cp": nums(curve.y), "upper": [bool(v) for v in curve.upper]}
         if mean.cl_balance is not None:
             out["balance"] = {"lift_n": num(mean.lift_n), "cl": num(mean.cl_balance)}
         if mean.mass_flow_kg_s is not None:
             out["venturi"] = {"mass_flow_kg_s": num(mean.mass_flow_kg_s),
-                              "u_mass_flow_kg_s": num(mean.u_mass_flow_kg_s),
+                              "u_mass_flow_kg_s": num(u.u_mass_flow_kg_s),
                               "volume_flow_m3_s": num(mean.mass_flow_kg_s / reducer.fluid.density)}
     return out
 
 
-def _tap_pressures(reducer, mean: ReducedMean) -> dict:
-    """Each tap's mean pressure and its uncertainty [Pa], in Cp order (None where the channel is not streamed)."""
+def _tap_pressures(reducer, mean: ReducedMean, u: ReducedMean | None = None) -> dict:
+    """Each tap's mean pressure and its uncertainty [Pa] (``u``'s), in Cp order (None where the channel is not
+    streamed)."""
+    u = mean if u is None else u
     col = {name: i for i, name in enumerate(mean.column_names)}
-    p = [num(mean.p_pa[col[t]]) if t in col else None for t in mean.tap_names]
-    u = [num(mean.u_p_pa[col[t]]) if t in col else None for t in mean.tap_names]
-    return {"value": p, "u": u}
+    u_col = {name: i for i, name in enumerate(u.column_names)}
+    p_all, u_all = nums(mean.p_pa), nums(u.u_p_pa)
+    p = [p_all[col[t]] if t in col else None for t in mean.tap_names]
+    uu = [u_all[u_col[t]] if t in u_col else None for t in mean.tap_names]
+    return {"value": p, "u": uu}
 
 
 def rig_description(reducer) -> dict:

@@ -244,7 +244,7 @@ def create_app(sources: Sources, keys: Keys, log: Callable[[str], None] | None =
                 yield b"retry: 2000\n\n"
                 latest = display.frames.latest
                 if latest is not None:
-                    yield b"data: " + latest.text() + b"\n\n"
+                    yield latest.event()
                 while True:
                     frame = sub.get(timeout=5.0)
                     if frame is None:
@@ -253,7 +253,7 @@ def create_app(sources: Sources, keys: Keys, log: Callable[[str], None] | None =
                             return
                         yield b": still here\n\n"
                         continue
-                    yield b"data: " + frame.text() + b"\n\n"
+                    yield frame.event()
             finally:
                 sub.close()
                 with streams_lock:

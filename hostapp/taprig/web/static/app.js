@@ -244,7 +244,9 @@ function drawReadings(f, r) {
   if (!r) { sw.hidden = false; sw.textContent = "no data yet"; }
   else if (r.state !== "flow") { sw.hidden = false; sw.textContent = `${r.state.toUpperCase()}: ${r.why}`; }
   else sw.hidden = true;
-  $("window-note").textContent = r ? `mean of ${r.window.used} scans` : "";
+  $("window-note").textContent = r ? `mean of ${r.window.used} scans` +
+    (r.uncertainty_window && r.uncertainty_window.scan_index[1] !== r.window.scan_index[1]
+      ? `; ± from the mean of ${r.uncertainty_window.used} scans ${((r.window.t_ns[1] - r.uncertainty_window.t_ns[1]) / 1e9).toFixed(2)} s earlier` : "") : "";
   const fl = r ? r.flow : {};
   setNum("n-q", r ? fmtU(fl.q_pa, "Pa") : null, r ? r.state : "no data");
   setNum("n-v", showCoeff ? fmtU(fl.v_ms, "m/s") : null, r ? r.state : "–");
@@ -349,7 +351,9 @@ function onFrame(f) {
       stats.latencies.push(drawnMs - f.host_ns / 1e6);
       if (stats.latencies.length > 5000) stats.latencies.splice(0, 1000);
       stats.drawn++;
-      stats.lastDrawn = { seq: f.seq, window: f.reading && f.reading.window, cl: $("n-cl").textContent, q: $("n-q").textContent };
+      stats.lastDrawn = { seq: f.seq, window: f.reading && f.reading.window,
+                          uncertaintyWindow: f.reading && f.reading.uncertainty_window,
+                          cl: $("n-cl").textContent, q: $("n-q").textContent };
     });
   }
 }
