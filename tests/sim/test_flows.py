@@ -17,6 +17,7 @@ from taprig.physics.panel import PanelModel
 from taprig.physics.sections import cosine_stations, naca4
 from taprig.protocol import SetActuator, Start
 from taprig.sim.airfoil import AirfoilFlow, StallModel
+from taprig.sim.plant import walled_model
 from taprig.sim.flows import DEFAULT_DIFFUSER_EFFICIENCY
 
 
@@ -71,18 +72,23 @@ def test_cylinder_taps_follow_potential_flow(host, rigs):
     np.testing.assert_allclose(cp, 1.0 - 4.0 * np.sin(layout.theta) ** 2, atol=3e-3)
 
 
+@pytest.mark.parametrize("walls", [False, True])
 @pytest.mark.parametrize("angle_deg", [-3.0, 4.0, 8.0])
-def test_airfoil_taps_are_the_panel_method_below_the_stall(host, rigs, angle_deg):
+def test_airfoil_taps_are_the_panel_method_below_the_stall(host, rigs, angle_deg, walls):
     rig = rigs("naca0012-20tap")
-    h = host("naca0012-20tap", viscous=False, max_speed=20.0)
+    h = host("naca0012-20tap", viscous=False, max_speed=20.0, walls=walls)
     values = _steady(h, fan=0.8, angle_deg=angle_deg)
     layout = rig.tap_layout()
     static = values[rig.reference.static].mean()
     q = values[rig.reference.total].mean() - static
     cp = np.array([(values[rig.channel(int(c)).name].mean() - static) / q for c in layout.channels])
     # the inviscid distribution of the aero engineer's panel model (itself checked against Joukowski's exact
-    # solution in tests/physics); the simulator must hand it through unchanged below the stall
-    expected = PanelModel(rig.section.shape).cp_at(math.radians(angle_deg), layout.x_c, layout.upper)
+    # solution in tests/physics), in free air or between the closed test section's walls (the images solution,
+    # checked in tests/physics/test_images.py); the simulator must hand it through unchanged below the stall
+    shape = rig.section.shape
+    model = walled_model(shape, rig.geometry.chord / rig.geometry.tunnel_height, rig.geometry.pivot_x_c) \
+        if walls else PanelModel(shape)
+    expected = model.cp_at_arc(math.radians(angle_deg), shape.arc_length_at(layout.x_c, layout.upper))
     lsb = 5.0 / 4095 / (5.0 * 0.00016)  # 12-bit ratiometric: one count [Pa]
     np.testing.assert_allclose(cp, expected, atol=3 * lsb / q)
 

@@ -21,6 +21,14 @@ trailing-edge stall used by the trade:
 * pressure fluctuations (rms, as a fraction of q) grow behind the separation point with the extent of the
   separation.
 
+In a closed test section (``walls`` given) the inviscid Cp is that of the section between the floor and the
+ceiling (:class:`taprig.physics.images.WalledPanelModel`), referred to the stream far upstream where the rig's
+probe reads q: the taps see the walls' blockage and streamline curvature as a real model does. The angles of the
+model stay geometric (decambering about the tunnel's own zero-lift angle), but the separation follows the
+incidence the section feels, the free-air angle with the same effective incidence (the geometric angle plus the
+walls' upwash at mid-chord, thin-aerofoil theory), so a model stalls in the tunnel where the same section stalls
+in free air once its angle is corrected for the walls.
+
 Everything here is pure: arrays of angles in, arrays of Cp out. The random part (the fluctuations' draws) is the
 caller's.
 """
@@ -32,6 +40,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from taprig.physics.images import WalledPanelModel
 from taprig.physics.integration import trapezoid_weights
 from taprig.physics.panel import PanelModel
 from taprig.physics.sections import SectionShape, cosine_stations
@@ -98,12 +107,19 @@ class AirfoilFlow:
         Stall and decambering parameters.
     n_grid : int
         Stations per surface of the dense grid used for Cl (and for the flat separated pressure).
+    walls : WalledPanelModel or None
+        The section between the walls of a closed test section (None: free air). Built for the same shape.
+    friction_drag : float
+        Skin-friction drag coefficient added to the pressure drag for the wake's displacement between walls [-].
     """
 
-    def __init__(self, shape: SectionShape, tap_x, tap_upper, stall: StallModel = StallModel(), n_grid: int = 80):
+    def __init__(self, shape: SectionShape, tap_x, tap_upper, stall: StallModel = StallModel(), n_grid: int = 80,
+                 walls: WalledPanelModel | None = None, friction_drag: float = 0.0):
         self.shape = shape
+        self.friction_drag = float(friction_drag)
         self.stall = stall
-        self.model = PanelModel(shape)
+        self.walls = walls
+        self.model = walls.free if walls is not None else PanelModel(shape)
         tap_x = np.asarray(tap_x, dtype=float)
         tap_upper = np.asarray(tap_upper, dtype=bool)
         self._n_taps = tap_x.size
@@ -121,6 +137,14 @@ class AirfoilFlow:
         self._grid_arc = (shape.arc_length_at(grid, True), shape.arc_length_at(grid, False))
         small = math.radians(2.0)
         cl0, cl1 = (float(v) for v in np.ravel(self.model.cl(np.array([0.0, small]))))
+        #: Zero-lift angle of the section in free air [rad]; the stall is measured from it.
+        self.free_zero_lift_angle = -cl0 * small / (cl1 - cl0)
+        self._tables = None
+        if walls is not None:
+            self._tables = tuple(walls.speed_table(arc) for arc in (self._arc, *self._grid_arc))
+            cl0, cl1 = (float(v) for v in self._weights.apply(self._cp(np.array([0.0, small]), 0)[:, self._n_taps:],
+                                                              np.array([0.0, small])).cl)
+        #: Geometric angle of zero lift [rad] (in the tunnel, where the walls' curvature shifts it).
         self.zero_lift_angle = -cl0 * small / (cl1 - cl0)
         self._table_alpha, self._table_effective = self._effective_angle_table()
 
@@ -136,7 +160,24 @@ class AirfoilFlow:
         extent = 1.0 - separation
         rms = self.stall.attached_rms + self.stall.separated_rms * extent[:, None] * behind[:, :n]
         cl, cd = np.asarray(coefficients.cl), np.asarray(coefficients.cd_p)
+        if self.walls is not None:
+            speed_up = (1.0 + self.wake_blockage(cd)) ** 2
+            cp, cl, cd = 1.0 - speed_up[:, None] * (1.0 - cp), cl * speed_up, cd * speed_up
         return SectionPressures(cp[back, :n], rms[back], cl[back], cd[back], separation[back])
+
+    def wake_blockage(self, cd_pressure: np.ndarray) -> np.ndarray:
+        r"""Speed-up at the model from its wake between the walls, relative to the stream far upstream [-].
+
+        .. math:: \varepsilon_w = \frac{Q}{2hV} = \frac{c}{4h}\,(C_{d,p} + C_{d,f}), \qquad Q = \tfrac12 V c\, C_d
+
+        The wake's displacement is a source of the volume deficit Q of its momentum loss (drag D = ρVQ); its
+        images in the walls form a row of equal sources h apart, which raises the speed at the model by Q/2h over
+        the speed far upstream. Every tap's q then grows by (1 + ε_w)². Thom's source-image argument, as in Allen
+        & Vincenti, NACA TR 782 (1944) (from memory; Barlow, Rae & Pope's Maskell-type form is twice this).
+        """
+        if self.walls is None:
+            return np.zeros_like(np.asarray(cd_pressure, dtype=float))
+        return 0.25 * self.walls.chord_over_height * (np.asarray(cd_pressure, dtype=float) + self.friction_drag)
 
     def _distribution(self, alpha: np.ndarray, suction_angle: np.ndarray):
         """Cp at every point (taps, then the dense contour) with the suction side at ``suction_angle``."""
@@ -144,9 +185,9 @@ class AirfoilFlow:
         rel = alpha - self.zero_lift_angle
         sign = np.where(rel >= 0.0, 1.0, -1.0)
         pressure_angle = self.zero_lift_angle + st.slope_factor * rel
-        separation = st.separation_point(np.abs(rel) - st.critical_angle)
+        separation = st.separation_point(np.abs(self._incidence(alpha, rel)) - st.critical_angle)
         suction = np.where(sign[:, None] > 0.0, self._upper[None, :], ~self._upper[None, :])
-        cp = np.where(suction, self._cp(suction_angle, self._arc), self._cp(pressure_angle, self._arc))
+        cp = np.where(suction, self._cp(suction_angle, 0), self._cp(pressure_angle, 0))
         behind = suction & (self._x[None, :] > separation[:, None])
         if np.any(behind):
             cp = np.where(behind, self._plateau(suction_angle, sign, separation)[:, None], cp)
@@ -162,9 +203,9 @@ class AirfoilFlow:
         rel = np.arange(-span, span + step / 2, step)
         alpha = self.zero_lift_angle + rel
         attached = self.zero_lift_angle + st.slope_factor * rel
-        f = st.separation_point(np.abs(rel) - st.critical_angle)
+        f = st.separation_point(np.abs(self._incidence(alpha, rel)) - st.critical_angle)
         n = self._n_taps
-        cl_attached = self._weights.apply(self._cp(attached, self._arc)[:, n:], alpha).cl
+        cl_attached = self._weights.apply(self._cp(attached, 0)[:, n:], alpha).cl
         target = cl_attached * ((1.0 + np.sqrt(f)) / 2.0) ** 2
         low = self.zero_lift_angle - np.sign(rel) * math.radians(10.0)
         lo_u, hi_u = np.zeros_like(rel), np.ones_like(rel)
@@ -177,13 +218,27 @@ class AirfoilFlow:
         effective = np.where(f < 1.0, low + 0.5 * (lo_u + hi_u) * (attached - low), attached)
         return alpha, effective
 
-    def _cp(self, alpha: np.ndarray, arc: np.ndarray) -> np.ndarray:
-        """Inviscid Cp, scans × points, at contour arc lengths ``arc``."""
+    def _cp(self, alpha: np.ndarray, which: int) -> np.ndarray:
+        """Inviscid Cp, scans × points, at the taps and dense contour (0), the upper (1) or lower (2) grid."""
+        if self._tables is not None:
+            return np.atleast_2d(1.0 - self._tables[which](np.clip(alpha, *self._table_range)) ** 2)
+        arc = (self._arc, *self._grid_arc)[which]
         return np.atleast_2d(self.model.cp_at_arc(alpha, arc))
+
+    @property
+    def _table_range(self) -> tuple[float, float]:
+        return float(self.walls.table_alpha[0]), float(self.walls.table_alpha[-1])
+
+    def _incidence(self, alpha: np.ndarray, rel: np.ndarray) -> np.ndarray:
+        """Angle from free-air zero lift that sets the separation [rad]: ``rel`` (α − α₀) in free air; between
+        walls the free-air angle of the same effective incidence less the free-air zero-lift angle."""
+        if self.walls is None:
+            return rel
+        return self.walls.equivalent_free_angle(alpha) - self.free_zero_lift_angle
 
     def _plateau(self, alpha_suction: np.ndarray, sign: np.ndarray, separation: np.ndarray) -> np.ndarray:
         """Suction-side Cp at each scan's separation point (linear interpolation on the dense grid)."""
-        up, lo = (self._cp(alpha_suction, arc) for arc in self._grid_arc)
+        up, lo = (self._cp(alpha_suction, which) for which in (1, 2))
         side = np.where(sign[:, None] > 0.0, up, lo)
         i = np.clip(np.searchsorted(self._grid, separation) - 1, 0, self._grid.size - 2)
         x0, x1 = self._grid[i], self._grid[i + 1]

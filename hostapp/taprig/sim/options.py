@@ -152,6 +152,7 @@ class SimOptions:
     thermal: bool = _option(True, _switch, "offset drift of the sensors as the board warms up")
     lag: bool = _option(True, _switch, "pneumatic lag of the tubing")
     viscous: bool = _option(True, _switch, "viscous lift-slope reduction of the airfoil (0 = inviscid panel Cp)")
+    walls: bool = _option(True, _switch, "floor and ceiling of a closed test section round an airfoil (0 = free air)")
     stall_deg: float = _option(12.0, _nonnegative, "critical angle of the airfoil above zero lift [deg]")
     venturi_c: float = _option(1.0, _discharge, "discharge coefficient of a simulated venturi (1 = ideal)")
     max_speed: float = _option(0.0, _nonnegative, "stream speed at full fan [m/s] (0 = 20 for air, 0.5 for water)")

@@ -11,12 +11,15 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
 from taprig.physics.air import AirState
 from taprig.physics.constants import ZERO_CELSIUS
 from taprig.physics.flow import cylinder_cp
+from taprig.physics.images import WalledPanelModel
+from taprig.physics.sections import SectionShape
 from taprig.physics.water import water_density
 from taprig.rig.model import Measures, Medium, Rig, RigKind
 from taprig.rig.sensors import Quantity
@@ -124,14 +127,52 @@ def _relative_port(channel, port: np.ndarray, rig: Rig) -> int:
     return int(port[rig.index_of(target)])
 
 
+#: Largest chord/height the simulated walls take; a model larger than that is simulated in free air.
+MAX_WALLED_CHORD_RATIO = 0.8
+#: Angle-of-attack pivot when the rig file gives none [x/c] (common practice: the quarter chord).
+DEFAULT_PIVOT_X_C = 0.25
+
+
+def walled_chord_ratio(rig: Rig, options: SimOptions) -> float | None:
+    """c/h of an airfoil the simulator puts between a floor and a ceiling, else None (free air).
+
+    Walls are simulated for an airfoil in air when the rig file states its chord and the tunnel height, the
+    tunnel is closed (not ``open-jet``), the ``walls`` option is on and c/h ≤ ``MAX_WALLED_CHORD_RATIO``. A water
+    channel's height is the depth under a free surface, which is not a wall: it stays free air.
+    """
+    g = rig.geometry
+    if not options.walls or options.tunnel == "open-jet" or rig.kind is not RigKind.AIRFOIL \
+            or rig.fluid.medium is not Medium.AIR or None in (g.chord, g.tunnel_height):
+        return None
+    ratio = g.chord / g.tunnel_height
+    return ratio if ratio <= MAX_WALLED_CHORD_RATIO else None
+
+
+@lru_cache(maxsize=8)
+def _walled_model(name: str, x: bytes, y: bytes, ratio: float, pivot: float) -> WalledPanelModel:
+    """The walled panel solution of one shape and tunnel, solved once per process (a few hundred ms)."""
+    shape = SectionShape(name, np.frombuffer(x), np.frombuffer(y))
+    return WalledPanelModel(shape, ratio, pivot)
+
+
+def walled_model(shape: SectionShape, ratio: float, pivot_x_c: float | None) -> WalledPanelModel:
+    """:class:`WalledPanelModel` of ``shape`` at c/h ``ratio`` turning about ``pivot_x_c`` (cached)."""
+    pivot = DEFAULT_PIVOT_X_C if pivot_x_c is None else float(pivot_x_c)
+    return _walled_model(shape.name, shape.x.tobytes(), shape.y.tobytes(), float(ratio), pivot)
+
+
 def _body(rig: Rig, layout, options: SimOptions) -> tuple[np.ndarray, AirfoilFlow | None]:
-    """The taps' Cp model: a fixed Cp per tap, or the airfoil's pressure model."""
+    """The taps' Cp model: a fixed Cp per tap, or the airfoil's pressure model (between walls where stated)."""
     n = len(layout.names)
     if rig.kind is RigKind.AIRFOIL and rig.section is not None and n:
         stall = StallModel(
             critical_angle=math.radians(options.stall_deg), slope_factor=0.9 if options.viscous else 1.0
         )
-        return np.zeros(n), AirfoilFlow(rig.section.shape, layout.x_c, layout.upper, stall)
+        ratio = walled_chord_ratio(rig, options)
+        shape = rig.section.shape
+        walls = None if ratio is None else walled_model(shape, ratio, rig.geometry.pivot_x_c)
+        return np.zeros(n), AirfoilFlow(shape, layout.x_c, layout.upper, stall, walls=walls,
+                                       friction_drag=FRICTION_DRAG)
     if rig.kind is RigKind.VENTURI and n:
         inlet = layout.names.index(rig.reference.inlet) if rig.reference.inlet in layout.names else 0
         return venturi_station_cp(layout.area, float(layout.area[inlet]), DEFAULT_DIFFUSER_EFFICIENCY,
