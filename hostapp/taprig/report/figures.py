@@ -147,12 +147,25 @@ def draw_lift(ax, content: SessionContent) -> None:
         return
     t = a.table
     alpha = t.alpha_rad * DEG
+    set_deg = t.alpha_set_rad * DEG
+    if np.isfinite(set_deg).any() and np.nanmax(set_deg) - np.nanmin(set_deg) < 1e-6 and np.isfinite(t.re).sum() > 1:
+        draw_reynolds(ax, content)  # a fan sweep at one angle: the lift against the Reynolds number
+        return
     legs = np.array(t.leg)
-    if (legs == "down").any():
-        for mask, style in ((legs != "down", UP), (legs == "down", DOWN)):
-            _errorbar(ax, alpha[mask], t.cl[mask], t.u_cl[mask], style)
-    else:
-        _errorbar(ax, alpha, t.cl, t.u_cl, ONE_WAY, label="pressure-integrated Cl")
+    groups = [np.ones(len(t), dtype=bool)] if len(a.fan_groups) < 2 else \
+        [np.isclose(t.fan, f) for f in a.fan_groups]
+    for g, group in enumerate(groups):
+        name = f"fan {a.fan_groups[g]:.3g}: " if len(groups) > 1 else ""
+        if (legs[group] == "down").any():
+            for mask, base, word in ((legs != "down", UP, "up"), (legs == "down", DOWN, "down")):
+                style = base if len(groups) == 1 else {**cycle(g), "ls": base["ls"], "marker": base["marker"]}
+                if word == "down":
+                    style = {**style, "mfc": "white"}
+                _errorbar(ax, alpha[mask & group], t.cl[mask & group], t.u_cl[mask & group], style,
+                          label=f"{name}sweep {word}")
+        else:
+            _errorbar(ax, alpha[group], t.cl[group], t.u_cl[group], ONE_WAY if len(groups) == 1 else cycle(g),
+                      label=name + "pressure-integrated Cl")
     if content.rig.balance is not None:
         if np.isfinite(t.u_cl_balance).any():
             ok = np.isfinite(t.u_cl_balance)
@@ -171,16 +184,29 @@ def draw_lift(ax, content: SessionContent) -> None:
     stall = a.stall
     if stall is not None:
         ax.plot([stall.alpha_cl_max * DEG], [stall.cl_max], marker="*", ms=13, mfc="white", mec=INK, ls="none",
-                label=f"Cl max {stall.cl_max:.3f}")
+                label="Cl max")
         if stall.stalled:
-            ax.axvline(stall.alpha_stall * DEG, color=GREY, ls=":", lw=1.0)
-            ax.text(stall.alpha_stall * DEG, ax.get_ylim()[0], " stall", rotation=90, va="bottom", fontsize=7,
-                    color=GREY)
+            ax.axvline(stall.alpha_stall * DEG, color=GREY, ls=":", lw=1.0, label="stall")
     ax.axhline(0, color=GREY, lw=0.5)
     ax.set_xlabel(_angle_label(content))
     ax.set_ylabel("Cl")
     ax.grid(True, lw=0.3, alpha=0.5)
     ax.legend(fontsize=7, loc="upper left", framealpha=0.85)
+
+
+def draw_reynolds(ax, content: SessionContent) -> None:
+    """Cl against Re for a sweep of the fan at one angle (a Reynolds-number sweep)."""
+    t = content.analysis.table
+    legs = np.array(t.leg)
+    for mask, style in ((legs != "down", UP if (legs == "down").any() else ONE_WAY), (legs == "down", DOWN)):
+        if mask.any():
+            _errorbar(ax, t.re[mask], t.cl[mask], t.u_cl[mask], style)
+    ax.set_xscale("log")
+    ax.set_xlabel("Re (chord)")
+    ax.set_ylabel("Cl")
+    ax.set_title(f"Lift against the Reynolds number at α = {np.nanmean(t.alpha_set_rad) * DEG:.1f}°", fontsize=10)
+    ax.grid(True, lw=0.3, alpha=0.5, which="both")
+    ax.legend(fontsize=7)
 
 
 def draw_polar(ax, content: SessionContent) -> None:
@@ -215,16 +241,17 @@ def draw_moment(ax, content: SessionContent) -> None:
 def draw_unsteadiness(ax, content: SessionContent) -> None:
     """The unsteadiness indicator per point against its threshold."""
     a = content.analysis
-    ax.set_title("Unsteadiness (suction-side Cp RMS / attached level)", fontsize=9)
+    ax.set_title("Unsteadiness indicator", fontsize=9)
     if a is None or a.unsteadiness is None:
         ax.text(0.5, 0.5, (a.reasons.get("unsteadiness") if a else "") or "not recorded", transform=ax.transAxes,
                 ha="center", va="center", fontsize=7, wrap=True)
         ax.set_xticks([]), ax.set_yticks([])
         return
     u = a.unsteadiness
-    ax.plot(a.table.alpha_rad * DEG, u.indicator, **marker_only(ONE_WAY), ms=4)
+    ax.plot(a.table.alpha_rad * DEG, u.indicator, **{**marker_only(ONE_WAY), "ls": "none"}, ms=4)
     ax.axhline(u.threshold, color=VERMILION, ls="--", lw=1.0, label=f"threshold {u.threshold:g}")
     ax.set_xlabel(_angle_label(content))
+    ax.set_ylabel("Cp RMS / attached level")
     ax.legend(fontsize=7)
     ax.grid(True, lw=0.3, alpha=0.5)
 
@@ -418,6 +445,8 @@ def draw_calibration(ax, content: SessionContent) -> None:
     ax.bar(pos - 0.2, np.nan_to_num(zero), width=0.4, color="white", edgecolor=INK, hatch="///",
            label="zero std. error [counts]")
     ax.set_xticks(pos, names, rotation=90, fontsize=6)
+    if np.nanmax(np.nan_to_num(zero)) > 0:
+        ax.set_yscale("log")  # channels of different converters differ by decades in counts
     ax.set_ylabel("counts", fontsize=7)
     ax.tick_params(labelsize=6)
     handles, labels = ax.get_legend_handles_labels()

@@ -96,8 +96,10 @@ def rests_on(c: SessionContent) -> tuple[list[str], list[str]]:
                     "100:2008 §5), the sensors' shared (systematic) errors included.")
     methods = sorted({m for m in (a.table.method if a is not None else ()) if m})
     if methods:
-        rest.append("Coefficients: " + ", ".join(methods) + " (shape: the shape-aware fit through the taps; walls: "
-                    "2-D wall corrections; plain: the trapezoid over the taps).")
+        words = {"plain": "the trapezoid over the taps", "shape": "the shape-aware fit through the taps",
+                 "shape+walls": "the shape-aware fit through the taps, with 2-D wall corrections",
+                 "plain+walls": "the trapezoid over the taps, with 2-D wall corrections"}
+        rest.append("Coefficients: " + "; ".join(words.get(m, m) for m in methods) + ".")
     omit = []
     if rig.kind in (RigKind.AIRFOIL, RigKind.CYLINDER, RigKind.BUMP):
         omit.append("Cd_p is pressure drag only: the taps do not see skin friction, so it is not the section's drag.")
@@ -201,7 +203,8 @@ def cover_page(c: SessionContent, others: Sequence[SessionContent] = ()):
     box_top = w.y - 0.005
     w.x += 0.015
     w.y -= 0.012
-    w.para(SAFETY, size=7.5, width=125)
+    w.para("Safety", size=9, bold=True, color=VERMILION)
+    w.para(SAFETY.removeprefix("Safety. "), size=7.5, width=125)
     fig.add_artist(FancyBboxPatch((0.07, w.y - 0.004), 0.86, box_top - w.y + 0.002, boxstyle="round,pad=0.004",
                                   transform=fig.transFigure, fc="none", ec=VERMILION, lw=1.0))
     fig.text(0.5, 0.02, f"taprig handout · {c.path.name} · page 1", ha="center", fontsize=6, color=GREY)
@@ -226,8 +229,13 @@ def lift_page(c: SessionContent, n: int):
     ax = fig.add_axes([0.1, 0.56, 0.82, 0.38])
     F.draw_lift(ax, c)
     _results(fig, F.lift_results(c), 0.51)
-    F.draw_polar(fig.add_axes([0.1, 0.07, 0.36, 0.27]), c)
-    F.draw_moment(fig.add_axes([0.58, 0.07, 0.36, 0.27]), c)
+    if c.analysis is not None and c.analysis.unsteadiness is not None:
+        F.draw_polar(fig.add_axes([0.08, 0.07, 0.25, 0.25]), c)
+        F.draw_moment(fig.add_axes([0.41, 0.07, 0.25, 0.25]), c)
+        F.draw_unsteadiness(fig.add_axes([0.73, 0.07, 0.23, 0.25]), c)
+    else:
+        F.draw_polar(fig.add_axes([0.1, 0.07, 0.36, 0.27]), c)
+        F.draw_moment(fig.add_axes([0.58, 0.07, 0.36, 0.27]), c)
     return fig
 
 
