@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -14,7 +15,9 @@ from taprig.physics.uncertainty import cp_covariance_absolute
 from taprig.physics.walls import WallCorrection
 from taprig.reduce import Ambient, Coefficients, ReduceOptions, Reducer, ScanFlag
 from taprig.reduce.mean import wall_corrected
-from taprig.rig import parse_rig
+from taprig.rig import load_rig, parse_rig
+
+RIGS = Path(__file__).resolve().parents[2] / "rigs"
 
 
 # u = 2 Pa per channel as a rectangular ±a bound over a 200 kPa span: a = √3·2 Pa → % FS (GUM 4.3.7).
@@ -220,13 +223,16 @@ def test_ambient_water_properties_follow_physics():
     assert props.density == pytest.approx(998.2072, abs=2e-3) and math.isnan(props.speed_of_sound)
 
 
-@pytest.mark.parametrize("rig", ["airfoil", "venturi"])
+@pytest.mark.parametrize("rig", ["airfoil", "balance", "venturi"])
 def test_values_only_mean_has_the_full_means_values_and_no_uncertainty(rig, make_block, airfoil_rig):
     # A display takes the uncertainties from a full mean a few times a second; the values it shows in between must
     # be the very numbers the full mean gives for the same scans (same code, so equal to the last bit).
     if rig == "airfoil":
         reducer = Reducer(parse_rig(airfoil_rig(TAPS, layout="differential"), "values.toml"))
         base = np.array([250.0, -100.0, -300.0, 50.0, 20.0])
+    elif rig == "balance":  # rigs/cambered-balance.toml: pitot, 6 upper and 3 lower gauge taps, a lift load cell [N]
+        reducer = Reducer(load_rig(RIGS / "cambered-balance.toml"))
+        base = np.array([250.0, -400.0, -350.0, -300.0, -200.0, -120.0, -40.0, 150.0, 60.0, 20.0, 12.0])
     else:
         reducer = Reducer(parse_rig(VENTURI, "venturi.toml"))
         base = np.array([540.0, 500.0 - 15.0 * 40.0, 500.0 - 3.0 * 40.0])
@@ -246,4 +252,4 @@ def test_values_only_mean_has_the_full_means_values_and_no_uncertainty(rig, make
             assert (a.cl, a.cd_p, a.cm_qc) == (b.cl, b.cd_p, b.cm_qc) and math.isnan(a.u_cl)
     assert full.uncertainty_method != values.uncertainty_method
     assert np.isnan(values.u_cp).all() and np.isnan(values.u_p_pa).all() and math.isnan(values.u_q_pa)
-    assert values.u_mass_flow_kg_s is None and np.isfinite(full.u_cp).all()
+    assert values.u_mass_flow_kg_s is None and values.u_cl_balance is None and np.isfinite(full.u_cp).all()

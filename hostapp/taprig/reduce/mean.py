@@ -345,7 +345,7 @@ def _mean_of(reducer, plan: ColumnPlan, reduced, alpha: float, uncertainties: bo
     corrected, wall = wall_corrected(reducer, default, alpha) if default is not None else (None, None)
     lift, cl_balance = reducer.balance(plan, p_mean[None, :], np.array([q]))
     u_cl_balance = balance_cl_u(float(lift[0]), float(np.sqrt(cov_p[plan.lift_column, plan.lift_column])),
-                                float(cl_balance[0]), q, u_q) if cl_balance is not None else None
+                                float(cl_balance[0]), q, u_q) if cl_balance is not None and uncertainties else None
     mass = reducer.venturi_flow(cp[None, :], np.array([q]), p_mean[None, :], plan)[0] \
         if reducer.layout.venturi is not None else None
     u_mass = venturi_mass_flow_u(reducer, plan, p_mean, cov_p, float(mass)) \
