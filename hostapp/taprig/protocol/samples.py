@@ -2,7 +2,8 @@
 
 A scan's bytes are described once per channel set by a :class:`SampleLayout`: a plain numpy dtype when every channel
 shares one encoding (the common case, and the fast one), else a packed structured dtype with one field per channel.
-Decoding a frame is then one ``numpy.frombuffer``; converting a run of frames to float64 counts is one concatenate.
+Decoding a frame is then one ``numpy.frombuffer``; converting a run of frames to float64 counts is one concatenate
+(a mixed layout: one strided cast per run of adjacent channels of one encoding).
 """
 
 from __future__ import annotations
@@ -63,9 +64,10 @@ class SampleLayout:
     dtype: np.dtype
     scan_bytes: int
     shared: bool
-    #: For a mixed layout, per encoding: (columns, byte offsets of those columns within a scan, wire dtype), so
-    #: unpacking is one byte gather per encoding rather than a field-by-field structured copy.
-    groups: tuple[tuple[np.ndarray, np.ndarray, np.dtype], ...] = ()
+    #: For a mixed layout, the runs of adjacent columns of one encoding: (first column, last column + 1, byte
+    #: offset of the first within a scan, wire dtype); each run is one strided view of the scans cast to float64
+    #: in one copy (no byte gather, no field-by-field structured copy).
+    runs: tuple[tuple[int, int, int, np.dtype], ...] = ()
 
     def frombuffer(self, buffer: bytes, offset: int, n_scans: int) -> np.ndarray:
         """Return a read-only view of ``n_scans`` scans in ``buffer`` from ``offset`` (no copy)."""
@@ -81,10 +83,13 @@ class SampleLayout:
                 return views[0].astype(np.float64)
             return np.concatenate(views, dtype=np.float64)
         records = views[0] if len(views) == 1 else np.concatenate(views)
-        raw = records.view(np.uint8).reshape(len(records), self.scan_bytes)
         out = np.empty((len(records), len(self.channels)), np.float64)
-        for columns, byte_index, wire in self.groups:
-            out[:, columns] = np.ascontiguousarray(raw[:, byte_index]).view(wire)
+        if len(records) == 0:
+            return out
+        base = records.view(np.uint8).reshape(len(records), self.scan_bytes)
+        for start, stop, offset, wire in self.runs:
+            out[:, start:stop] = np.ndarray((len(records), stop - start), wire, base, offset,
+                                            (self.scan_bytes, wire.itemsize))
         return out
 
 
@@ -100,13 +105,12 @@ def make_layout(channels: Sequence[int], encodings: Sequence[Encoding]) -> Sampl
         return SampleLayout(tuple(channels), encodings, wire[0], wire[0].itemsize * len(wire), True)
     dtype = np.dtype({"names": [f"c{i}" for i in channels], "formats": wire})
     offsets = np.cumsum([0] + [w.itemsize for w in wire[:-1]])
-    groups = []
-    for encoding in sorted(set(encodings)):
-        columns = np.array([j for j, e in enumerate(encodings) if e is encoding])
-        width = WIRE_DTYPES[encoding].itemsize
-        byte_index = (offsets[columns][:, None] + np.arange(width)).ravel()
-        groups.append((columns, byte_index, WIRE_DTYPES[encoding]))
-    return SampleLayout(tuple(channels), encodings, dtype, dtype.itemsize, False, tuple(groups))
+    runs, start = [], 0
+    for j in range(1, len(encodings) + 1):
+        if j == len(encodings) or encodings[j] is not encodings[start]:
+            runs.append((start, j, int(offsets[start]), wire[start]))
+            start = j
+    return SampleLayout(tuple(channels), encodings, dtype, dtype.itemsize, False, tuple(runs))
 
 
 def layout_for_mask(description: Description, mask: int) -> SampleLayout | None:

@@ -50,8 +50,9 @@ def plain_coefficients(contour: Contour, cp: np.ndarray, tap_ok: np.ndarray, alp
         Three (scans,) arrays [-] (NaN where not integrable) and the :class:`ScanFlag` bits DEGRADED (taps left
         out) and NO_INTEGRAL (too few taps).
     """
-    cpc = cp[:, contour.columns]
-    ok = tap_ok[:, contour.columns]
+    identity = contour.columns.size == cp.shape[1] and np.array_equal(contour.columns, np.arange(cp.shape[1]))
+    cpc = cp if identity else cp[:, contour.columns]  # every tap once, in order: no gather needed
+    ok = tap_ok if identity else tap_ok[:, contour.columns]
     n = cp.shape[0]
     flags = np.zeros(n, dtype=SCAN_FLAG_DTYPE)
     everything = np.ones(ok.shape[1], dtype=bool)

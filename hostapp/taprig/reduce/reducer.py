@@ -223,12 +223,21 @@ class Reducer:
     # -- steps (public so reduce_mean and the benchmark reuse exactly these) ------------------------------------
     def pressures(self, plan: ColumnPlan, counts: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Counts → calibrated values, per-sample :class:`ChannelFlag` bits and the unusable-sample mask."""
-        p = (counts - plan.zero) * plan.scale  # the rig's Conversion, value = (counts − zero) · scale
-        saturated = (counts <= plan.rail_lo) | (counts >= plan.rail_hi)  # the sensors' own rail test, per column
+        p = np.subtract(counts, plan.zero)  # the rig's Conversion, value = (counts − zero) · scale
+        p *= plan.scale
+        saturated = counts <= plan.rail_lo  # the sensors' own rail test, per column
+        saturated |= counts >= plan.rail_hi
         with np.errstate(invalid="ignore"):
-            out_of_range = (p < plan.range_lo) | (p > plan.range_hi)
-        not_finite = ~np.isfinite(p)
-        flags = saturated.view(np.uint8) | (out_of_range.view(np.uint8) << 1) | (not_finite.view(np.uint8) << 2)
+            out_of_range = p < plan.range_lo
+            out_of_range |= p > plan.range_hi
+        finite = np.isfinite(p)
+        flags = out_of_range.view(np.uint8)
+        flags <<= 1
+        flags |= saturated.view(np.uint8)
+        if finite.all():  # the common case: no NOT_FINITE bit to set, and unusable is just saturated
+            return p, flags.astype(CHANNEL_FLAG_DTYPE, copy=False), saturated
+        not_finite = ~finite
+        flags |= not_finite.view(np.uint8) << 2
         return p, flags.astype(CHANNEL_FLAG_DTYPE, copy=False), saturated | not_finite
 
     def pressure_coefficients(self, plan: ColumnPlan, p: np.ndarray, unusable: np.ndarray):
@@ -242,8 +251,11 @@ class Reducer:
         dead = no_flow | reference_bad
         q_safe = np.where(dead, np.nan, q)  # NaN, never a division by ~0: Cp is NaN, never inf
         cp = delta / q_safe[:, None]
-        tap_ok = ~unusable[:, plan.tap_columns] & ~plan.missing_taps
-        cp[~tap_ok] = np.nan
+        tap_ok = ~unusable[:, plan.tap_columns]
+        if plan.missing_taps.any():
+            tap_ok &= ~plan.missing_taps
+        if not tap_ok.all():
+            np.copyto(cp, np.nan, where=~tap_ok)
         flags = np.where(no_flow, ScanFlag.NO_FLOW, 0) | np.where(reference_bad, ScanFlag.REFERENCE_INVALID, 0)
         if plan.missing_taps.any():
             flags = flags | int(ScanFlag.MISSING_TAPS)
