@@ -310,3 +310,35 @@ def test_an_existing_pdf_is_kept_unless_forced(sessions, tmp_path):
     assert code == 2 and ".pdf" in _one_line(err)
     code, _, err = handout(sessions["bump"], "--align", "sideways")
     assert code == 2 and "--align" in err and "Traceback" not in err
+
+
+def test_upper_and_lower_differ_beyond_colour_and_negative_cp_is_up(sessions):
+    # Readable in grey print and by colour-blind readers: the surfaces (and the fit's two halves) must differ in
+    # marker shape, fill and dash, not only in hue (common practice for figures printed in grey)
+    from matplotlib.colors import to_rgba
+
+    from taprig.report import load_session
+    from taprig.report.figures import draw_cp_point
+    from taprig.report.style import new_figure
+
+    content = load_session(sessions["airfoil"])
+    fig = new_figure()
+    ax = fig.add_subplot()
+    point = [p for p in content.shown if p.fit is not None][2]
+    draw_cp_point(ax, content, point)
+    assert ax.yaxis_inverted()  # suction (negative Cp) up
+    taps = {c.get_label(): c.lines[0] for c in ax.containers}
+    upper, lower = taps["upper surface taps"], taps["lower surface taps"]
+    assert upper.get_marker() != lower.get_marker()
+    assert to_rgba(upper.get_markerfacecolor()) != to_rgba(lower.get_markerfacecolor())
+    fits = {line.get_label(): line for line in ax.get_lines()}
+    assert fits["fit, upper"].get_linestyle() != fits["fit, lower"].get_linestyle()
+    # the fit is the reducer's shape fit through these taps: it passes near the measured Cp at the taps
+    x, y = upper.get_data()
+    fit_x, fit_y = fits["fit, upper"].get_data()
+    order = np.argsort(fit_x)
+    near = np.interp(np.asarray(x, dtype=float), np.asarray(fit_x)[order], np.asarray(fit_y)[order])
+    layout = content.rig.tap_layout()
+    u_at = {float(xc): point.record["u_cp"][n] for n, xc, up in zip(layout.names, layout.x_c, layout.upper) if up}
+    u = np.array([u_at[float(v)] for v in x])
+    assert np.all(np.abs(near - np.asarray(y, dtype=float)) <= 3 * u + 0.05)

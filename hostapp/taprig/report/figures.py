@@ -28,6 +28,7 @@ def _num(value) -> float:
 
 def _errorbar(ax, x, y, u, style: dict, label: str | None = None, **kw):
     x, y, u = (np.asarray(v, dtype=float) for v in (x, y, u))
+    y = np.where(np.isfinite(u), y, np.nan)  # a value without its uncertainty is not drawn
     ok = np.isfinite(x)  # a missing value (NaN) stays in place and breaks the line there
     if not (ok & np.isfinite(y)).any():
         return None
@@ -218,7 +219,8 @@ def draw_polar(ax, content: SessionContent) -> None:
                 ha="center", fontsize=7, wrap=True)
         return
     pol = a.polar
-    ax.errorbar(pol.cd_p, pol.cl, xerr=np.nan_to_num(pol.u_cd_p), yerr=np.nan_to_num(pol.u_cl), capsize=2,
+    ok = np.isfinite(pol.u_cd_p) & np.isfinite(pol.u_cl)  # a value without its uncertainty is not drawn
+    ax.errorbar(pol.cd_p[ok], pol.cl[ok], xerr=pol.u_cd_p[ok], yerr=pol.u_cl[ok], capsize=2,
                 **marker_only(ONE_WAY), ms=4, lw=1.0, elinewidth=0.7)
     ax.set_xlabel("Cd_p")
     ax.set_ylabel("Cl")
