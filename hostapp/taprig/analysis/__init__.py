@@ -12,7 +12,7 @@ from taprig.analysis.lift import (
 from taprig.analysis.points import COEFFICIENT_CHOICES, PointTable, point_table
 from taprig.analysis.summary import SweepAnalysis, VenturiStations, analyse_points, has_own_flow_reference, \
     surfaces, venturi_stations
-from taprig.analysis.unsteady import UNSTEADY_THRESHOLD, Unsteadiness, unsteadiness
+from taprig.analysis.unsteady import UNSTEADY_THRESHOLD, Unsteadiness, tap_fluctuation, unsteadiness
 from taprig.analysis.venturi import ISO_MACHINED, DischargeCoefficient, IsoVenturiRange, discharge_coefficient, \
     station_comparison
 
@@ -20,6 +20,7 @@ __all__ = [
     "BalanceComparison", "COEFFICIENT_CHOICES", "DischargeCoefficient", "DragPolar", "Hysteresis", "ISO_MACHINED",
     "IsoVenturiRange", "LinearFit", "PointTable", "Stall", "UNSTEADY_THRESHOLD", "Unsteadiness",
     "balance_against_pressures", "discharge_coefficient", "find_stall", "fit_line", "hysteresis",
-    "linear_range_fit", "moment_slope", "point_table", "pressure_drag_polar", "station_comparison", "unsteadiness",
+    "linear_range_fit", "moment_slope", "point_table", "pressure_drag_polar", "station_comparison", "tap_fluctuation",
+    "unsteadiness",
     "SweepAnalysis", "VenturiStations", "analyse_points", "has_own_flow_reference", "surfaces", "venturi_stations",
 ]

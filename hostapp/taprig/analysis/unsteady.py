@@ -73,3 +73,43 @@ def unsteadiness(alpha_rad, cp_rms_suction, attached: Sequence[int] | None = Non
     rising = unsteady & (alpha >= 0)
     first = float(alpha[rising].min()) if rising.any() else math.nan
     return Unsteadiness(indicator, unsteady, level, threshold, first)
+
+
+def tap_fluctuation(cp, q_pa) -> np.ndarray:
+    r"""Each tap's Cp fluctuation over a point's scans, the quantity a point records as ``cp_rms``.
+
+    .. math:: C_p' = \sigma(p - p_\infty) / \bar q = \sigma(C_p\,q) / \bar q
+
+    with σ the sample standard deviation over the scans (Bessel-corrected) and q̄ the mean dynamic pressure, so
+    that the noise of q itself does not count as a fluctuation of the surface pressure (module docstring).
+
+    Parameters
+    ----------
+    cp : array_like
+        Pressure coefficient per scan and tap (scans × taps) [-]; NaN where a scan has none.
+    q_pa : array_like
+        Dynamic pressure of each scan [Pa].
+
+    Returns
+    -------
+    ndarray
+        Cp' per tap [-]; NaN for a tap with fewer than 2 usable scans or without a positive mean q.
+
+    Examples
+    --------
+    >>> q = np.array([100.0, 100.0, 100.0, 100.0])
+    >>> tap_fluctuation(np.array([[-1.0], [-1.2], [-1.0], [-1.2]]), q).round(4).tolist()
+    [0.1155]
+    """
+    cp = np.atleast_2d(np.asarray(cp, dtype=float))
+    q = np.asarray(q_pa, dtype=float)
+    dp = cp * q[:, None]
+    ok = np.isfinite(dp)
+    n = ok.sum(axis=0)
+    q_mean = float(np.nanmean(q)) if np.isfinite(q).any() else math.nan
+    out = np.full(cp.shape[1], math.nan)
+    usable = (n >= 2) & (q_mean > 0)
+    if usable.any():
+        with np.errstate(invalid="ignore"):
+            out[usable] = np.nanstd(dp[:, usable], axis=0, ddof=1) / q_mean
+    return out

@@ -26,6 +26,7 @@ from datetime import datetime, timezone
 from typing import Callable
 
 from taprig import __version__
+from taprig.analysis.unsteady import tap_fluctuation
 from taprig.link import Link, LinkError, LinkEvent, LinkEventKind
 from taprig.link.errors import CommandRefusedError, CommandTimeoutError
 from taprig.protocol import Description, DeviceState, Log, RawBlock, Status, channels_to_mask
@@ -179,6 +180,9 @@ class Acquisition:
         # (docs/session-format.md, Replay): so a replay of the record is bit-identical to the live run.
         self._schedule_lock = threading.Lock()
         self._angles = AngleSchedule(rig)
+        self._hand_angle: float | None = None
+        #: The record of the newest captured point (:meth:`capture_point`), None before the first.
+        self.last_record: dict | None = None
         self._reducers: list[tuple[int, Reducer]] = [(0, reducer)]
         self.scans = 0
         self.display_skipped = 0
@@ -465,9 +469,24 @@ class Acquisition:
 
     @property
     def alpha_rad(self) -> float | None:
-        """The angle of attack now: the setpoint of the rig's angle actuator, if it has one."""
+        """The angle of attack now: the setpoint of the rig's angle actuator, if it has one; else the angle the
+        operator last set by hand (:meth:`set_angle_by_hand`), if any."""
         servo = self.rig.actuator_of_kind(ActuatorKind.ANGLE)
-        return None if servo is None else self.setpoints[servo.name]
+        return self._hand_angle if servo is None else self.setpoints[servo.name]
+
+    def set_angle_by_hand(self, value: float) -> None:
+        """The operator set the model to ``value`` [rad] by hand (a rig with no angle actuator): nothing is sent
+        to the board; the angle is recorded as a ``hand angle`` event and used by the reduction from now on, live
+        and in a replay."""
+        if self.rig.actuator_of_kind(ActuatorKind.ANGLE) is not None:
+            raise AcquisitionError(f"rig {self.rig.id!r} sets its angle with its servo, not by hand")
+        if not math.isfinite(value):
+            raise AcquisitionError(f"an angle set by hand must be a finite number, got {value}")
+        with self._schedule_lock:
+            host_ns = time.time_ns()
+            self._angles.add(host_ns, value)
+            self._hand_angle = float(value)
+            self.event("hand angle", {"value": float(value)}, host_ns)
 
     def event(self, kind: str, data: dict, host_ns: int | None = None) -> None:
         """Record an operator event in the session (if recording)."""
@@ -533,15 +552,27 @@ class Acquisition:
         q = finite_mean(reduced.q_pa)
         raise AcquisitionError(f"no flow (q = {q:.1f} Pa): {reason}")
 
-    def capture_point(self, label: str, seconds: float = 2.0) -> ReducedMean:
-        """Average the last ``seconds`` into a point with uncertainties, record it and return it."""
+    def capture_point(self, label: str, seconds: float = 2.0, extra: dict | None = None) -> ReducedMean:
+        """Average the last ``seconds`` into a point with uncertainties, record it and return it.
+
+        The record (:func:`point_record`, with each tap's Cp fluctuation over the window) gets ``extra``'s fields
+        too (a sweep's setpoints and leg); :attr:`last_record` keeps it.
+        """
         block = self.recent(seconds)
         self.check_running()  # after taking the scans: a halt is noted before any scan that follows it arrives
         if block is None or block.n_scans < 2:
             raise AcquisitionError("no data yet to capture a point from")
-        mean = self.reducer.reduce_mean(block, alpha_rad=self.alpha_rad)
+        reducer, alpha = self.reducer, self.alpha_rad
+        mean = reducer.reduce_mean(block, alpha_rad=alpha)
+        reduced = reducer.reduce(block, alpha_rad=alpha)
+        record = point_record(mean, seconds)
+        record["cp_rms"] = {t: _finite_or_none(v) for t, v in
+                            zip(reduced.tap_names, tap_fluctuation(reduced.cp, reduced.q_pa))}
+        record["setpoints"] = {name: float(v) for name, v in self.setpoints.items()}
+        record.update(extra or {})
+        self.last_record = record
         if self.writer is not None:
-            self.writer.add_point(label, point_record(mean, seconds))
+            self.writer.add_point(label, record)
         return mean
 
     def zero(self, seconds: float = 2.0, note: str = "") -> Calibration:
@@ -720,6 +751,10 @@ def session_meta(rig: Rig, port: str, ambient) -> dict[str, str]:
             **ambient_to_meta(ambient)}
 
 
+def _finite_or_none(x) -> float | None:
+    return float(x) if x is not None and math.isfinite(x) else None
+
+
 def _coefficients(c) -> dict | None:
     return None if c is None else {k: v for k, v in vars(c).items()}
 
@@ -737,6 +772,7 @@ def point_record(mean: ReducedMean, seconds: float) -> dict:
         "u_cp": {t: num(c) for t, c in zip(mean.tap_names, mean.u_cp)},
         "plain": _coefficients(mean.plain), "shape": _coefficients(mean.shape),
         "corrected": _coefficients(mean.corrected),
+        "wall_alpha_rad": num(mean.wall.alpha) if mean.corrected is not None and mean.wall is not None else None,
         "lift_n": num(mean.lift_n), "cl_balance": num(mean.cl_balance), "u_cl_balance": num(mean.u_cl_balance),
         "mass_flow_kg_s": num(mean.mass_flow_kg_s), "u_mass_flow_kg_s": num(mean.u_mass_flow_kg_s),
     }

@@ -454,9 +454,11 @@ class Station(Display):
 
     def add_sweep_point(self, point) -> None:
         """Add a sweep's point (:class:`taprig.runtime.sweep.SweepPoint`) to the table and the lift curve."""
+        plan = getattr(point, "plan", None)
+        label = (f"sweep {plan.label()}" if plan is not None else
+                 f"sweep α {math.degrees(point.alpha_rad):+.1f}°" if point.alpha_rad is not None else "sweep point")
         with self._lock:
-            self.points.append(point_summary(len(self.points) + 1, f"sweep α {math.degrees(point.alpha_rad):+.1f}°",
-                                             point.mean, point.alpha_rad))
+            self.points.append(point_summary(len(self.points) + 1, label, point.mean, point.alpha_rad))
 
     def stop_sweep(self) -> None:
         """Stop the sweep after its current step (the actuators stay where they are; use stop for safe values)."""

@@ -1,7 +1,12 @@
-"""Angle-of-attack sweeps: set each angle, let the flow and the tubing settle, capture an averaged point.
+"""Sweeps: set each point's angle and fan (a :class:`taprig.runtime.plan.SweepPlan`), let the flow and the
+tubing settle, capture an averaged point.
 
 Waiting is on *device* time (the scans' own timestamps), so a sweep on the simulated rig in compressed time takes
 as long as the data does, and a sweep on a real board is not fooled by a slow host.
+
+Every point's record carries what the analysis needs besides the reduced mean (docs/session-format.md, Points):
+the plan's index, leg and group, the commanded angle and fan setting, whether the angle was set by hand, and each
+tap's Cp fluctuation (the unsteadiness indicator's input).
 """
 
 from __future__ import annotations
@@ -10,21 +15,33 @@ import math
 import threading
 import time
 from dataclasses import dataclass, replace
-from typing import Callable, Sequence
+from typing import Callable, Mapping, Protocol, Sequence
 
 from taprig.protocol import ActuatorKind
 from taprig.reduce import ReducedMean
 from taprig.reduce.polar import LiftCurve, lift_curve
 from taprig.reduce.steady import Steadiness, SteadyCriteria, block_steadiness
 from taprig.runtime.acquisition import Acquisition, AcquisitionError
+from taprig.runtime.plan import PlanError, PlanPoint, SweepPlan, point_record_keys
 
 
 @dataclass(frozen=True)
 class SweepPoint:
-    """One point of a sweep: the commanded angle [rad] and the averaged, reduced result."""
+    """One point of a sweep: the angle [rad] (commanded, or set by hand; None when the rig has none), the
+    averaged, reduced result, and its plan point and record (None for a point of :func:`run_sweep`)."""
 
-    alpha_rad: float
+    alpha_rad: float | None
     mean: ReducedMean
+    plan: PlanPoint | None = None
+    record: Mapping | None = None
+
+
+class HandOperator(Protocol):
+    """Whoever sets the angle of a rig with no servo: the terminal, or the dashboard's page."""
+
+    def set_angle(self, point: PlanPoint) -> float | None:
+        """Ask for the model at ``point.alpha_rad``; return the angle the operator set [rad], or None to stop the
+        sweep there. May raise :class:`AcquisitionError` (the run is ending)."""
 
 
 def _angle_actuator(acq: Acquisition) -> str:
@@ -106,11 +123,105 @@ def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1
         acq.check_flow(average_s)  # a sweep of points without flow would be numbers without meaning
         if steady is not None:
             wait_steady(acq, replace(steady, hold_s=max(steady.hold_s, average_s)), timeout_s)
-        mean = acq.capture_point(f"alpha {math.degrees(alpha):+.1f} deg", average_s)
-        point = SweepPoint(float(alpha), mean)
+        mean = acq.capture_point(f"alpha {math.degrees(alpha):+.1f} deg", average_s,
+                                 {"plan_index": len(points), "leg": "up", "plan_alpha_rad": float(alpha),
+                                  "fan": _fan_setting(acq), "by_hand": False})
+        point = SweepPoint(float(alpha), mean, None, acq.last_record)
         points.append(point)
         if on_point is not None:
             on_point(point)
+    return points
+
+
+def _fan_setting(acq: Acquisition) -> float | None:
+    fan = acq.rig.actuator_of_kind(ActuatorKind.FAN)
+    return None if fan is None else float(acq.setpoints[fan.name])
+
+
+def check_plan(rig, plan: SweepPlan) -> None:
+    """Refuse a plan the rig cannot run (:class:`PlanError` naming the value and the limit), before anything
+    opens or moves: angles and fan settings outside the actuators' limits are refused, never clipped."""
+    servo, fan = rig.actuator_of_kind(ActuatorKind.ANGLE), rig.actuator_of_kind(ActuatorKind.FAN)
+    if plan.angles_rad and not plan.by_hand:
+        if servo is None:
+            raise PlanError(f"rig {rig.id!r} has no angle actuator: set the angles by hand (by-hand sweep), or "
+                            "sweep the fan")
+        lo, hi = min(plan.angles_rad), max(plan.angles_rad)
+        if lo < servo.min - 1e-9 or hi > servo.max + 1e-9:
+            raise PlanError(f"angles {math.degrees(lo):g}…{math.degrees(hi):g}° reach outside the servo's limits "
+                            f"{math.degrees(servo.min):g}…{math.degrees(servo.max):g}°; a sweep refuses them "
+                            "rather than clip")
+    if plan.by_hand and servo is not None:
+        raise PlanError(f"rig {rig.id!r} sets its angle with its servo; a by-hand sweep is for a rig without one")
+    if plan.fans:
+        if fan is None:
+            raise PlanError(f"rig {rig.id!r} has no fan actuator to set")
+        lo, hi = min(plan.fans), max(plan.fans)
+        if lo < fan.min - 1e-12 or hi > fan.max + 1e-12:
+            raise PlanError(f"fan settings {lo:g}…{hi:g} reach outside the fan's range {fan.min:g} … {fan.max:g} "
+                            f"({fan.unit}); a sweep refuses them rather than clip")
+        if any(abs(f - fan.safe) < 1e-12 for f in plan.fans):
+            raise PlanError(f"fan setting {fan.safe:g} is the fan's safe (off) value: a point needs flow")
+
+
+def run_plan(acq: Acquisition, plan: SweepPlan, settle_s: float = 1.0, average_s: float = 1.0,
+             timeout_s: float = 30.0, on_point: Callable[[SweepPoint], None] | None = None,
+             stop: threading.Event | None = None, steady: SteadyCriteria | None = None,
+             done: Sequence[Mapping] = (), spin_up_s: float = 4.0, operator: HandOperator | None = None,
+             safe_at_end: bool = True) -> list[SweepPoint]:
+    """Take the points of ``plan`` after the records ``done`` (empty, or an interrupted sweep's), in order.
+
+    Each point: set the fan when its setting changes (then wait ``spin_up_s``), set the angle (the servo, or
+    ``operator`` for a sweep by hand), wait ``settle_s`` + ``average_s`` of device time, check for flow, wait
+    for steady flow with ``steady``, capture ``average_s`` (recorded with the plan's fields, module docstring).
+
+    ``stop`` (set from another thread) ends the sweep before its next point; the operator may stop it too. When
+    the plan is complete or stopped, and ``safe_at_end``, every actuator the plan drove goes back to its safe
+    value. A halt of the board or the run ending raises :class:`AcquisitionError` at once (the points taken are
+    kept, ``on_point`` has seen each); nothing more is sent then: the run's shutdown sends the safe values.
+    """
+    check_plan(acq.rig, plan)
+    if plan.by_hand and operator is None:
+        raise AcquisitionError("a sweep by hand needs an operator to set the angles")
+    servo, fan = acq.rig.actuator_of_kind(ActuatorKind.ANGLE), acq.rig.actuator_of_kind(ActuatorKind.FAN)
+    records, points = list(done), []
+    acq.check_running()
+    acq.event("sweep plan", {"plan": plan.to_dict(), "settle_s": settle_s, "average_s": average_s,
+                             "spin_up_s": spin_up_s, "resumed_after": len(records)})
+    driven = set()
+    while (target := plan.next_point(records)) is not None:
+        if stop is not None and stop.is_set():
+            acq.event("sweep stopped", {"by": "operator", "points": len(records)})
+            break
+        acq.check_running()
+        if target.fan is not None and acq.setpoints[fan.name] != target.fan:
+            acq.set_actuator(fan.name, target.fan)
+            driven.add(fan.name)
+            wait_device_time(acq, spin_up_s, timeout_s + spin_up_s)
+        if target.alpha_rad is not None:
+            if plan.by_hand:
+                angle = operator.set_angle(target)
+                if angle is None:
+                    acq.event("sweep stopped", {"by": "operator", "points": len(records)})
+                    break
+                acq.set_angle_by_hand(angle)
+            else:
+                acq.set_actuator(servo.name, target.alpha_rad)
+                driven.add(servo.name)
+        wait_device_time(acq, settle_s + average_s, timeout_s)
+        acq.check_flow(average_s)  # points without flow would be numbers without meaning
+        if steady is not None:
+            wait_steady(acq, replace(steady, hold_s=max(steady.hold_s, average_s)), timeout_s)
+        mean = acq.capture_point(target.label(), average_s, point_record_keys(target))
+        records.append(acq.last_record)
+        point = SweepPoint(acq.alpha_rad, mean, target, acq.last_record)
+        points.append(point)
+        if on_point is not None:
+            on_point(point)
+    if safe_at_end:
+        for actuator in acq.rig.actuators:
+            if actuator.name in driven:
+                acq.set_actuator(actuator.name, actuator.safe)
     return points
 
 
@@ -125,3 +236,46 @@ def sweep_lift_curve(points: Sequence[SweepPoint], corrected: bool = True) -> Li
         alphas.append(alpha)
         cls.append(coeffs.cl)
     return lift_curve(alphas, cls)
+
+
+@dataclass(frozen=True)
+class Resumable:
+    """What an interrupted sweep's session holds to go on from: its ``plan``, its pacing (``settle_s``,
+    ``average_s``, ``spin_up_s``), the ``records`` of its points in order, its ``session_id`` and ``rig_id``."""
+
+    plan: SweepPlan
+    settle_s: float
+    average_s: float
+    spin_up_s: float
+    records: tuple
+    session_id: str
+    rig_id: str
+
+    @property
+    def complete(self) -> bool:
+        """True when the plan has no point left to take."""
+        return self.plan.next_point(self.records) is None
+
+
+def read_resumable(path) -> Resumable:
+    """The sweep recorded in the session file ``path``, to resume (:class:`PlanError` when it holds none, or
+    points of another plan; :class:`taprig.session.store.SessionError` when it cannot be read)."""
+    from taprig.session.store import SessionReader
+
+    with SessionReader(path) as reader:
+        meta = dict(reader.meta)
+        plans = [e for e in reader.events() if e.kind == "sweep plan" and isinstance(e.data, dict)]
+        entries = reader.points()
+    if not plans:
+        raise PlanError(f"{path}: holds no sweep plan (recorded by `taprig sweep` of this version) to resume")
+    stored = plans[-1].data
+    plan = SweepPlan.from_dict(stored.get("plan") or {})
+    records = tuple(e.data for e in entries if isinstance(e.data, dict) and "plan_index" in e.data)
+    settings = []
+    for key, default in (("settle_s", 1.0), ("average_s", 1.0), ("spin_up_s", 4.0)):
+        value = stored.get(key, default)
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value < 0:
+            raise PlanError(f"{path}: the sweep plan's {key} is {value!r}, expected a number of seconds")
+        settings.append(float(value))
+    plan.next_point(records)  # the points must be this plan's, in its order
+    return Resumable(plan, *settings, records, str(meta.get("session_id", "")), str(meta.get("rig_id", "")))

@@ -113,7 +113,9 @@ class AngleSchedule:
     """The commanded angle of attack [rad] in force at each host time (None for a rig without an angle actuator).
 
     Built from a session's events, or fed live with :meth:`add` in time order. ``at(host_ns)`` is the safe value
-    of the angle actuator until the first setpoint, then the latest setpoint stamped at or before ``host_ns``.
+    of the angle actuator until the first setpoint, then the latest setpoint stamped at or before ``host_ns``. On a
+    rig with no angle actuator the ``hand angle`` events (an angle the operator set by hand) stand for the
+    setpoints, and there is no angle before the first.
     """
 
     def __init__(self, rig: Rig, events: list[Entry] = ()):
@@ -124,7 +126,8 @@ class AngleSchedule:
         self._values: list[float] = []
         for event in events:
             data = event.data if isinstance(event.data, dict) else {}
-            if event.kind == "setpoint" and data.get("actuator") in self._names and "value" in data:
+            by_hand = event.kind == "hand angle" and not self._names  # a rig with no servo: set by the operator
+            if (by_hand or event.kind == "setpoint" and data.get("actuator") in self._names) and "value" in data:
                 value = data["value"]
                 if isinstance(value, bool) or not isinstance(value, (int, float)):
                     raise ReplayError(f"damaged session: the setpoint event at host_ns {event.host_ns} has value "

@@ -94,6 +94,9 @@ class SimulatedDevice:
     def __init__(self, rig: Rig, options: SimOptions = SimOptions()):
         self.rig = rig
         self.options = options
+        #: Angle of attack [deg] of a section with no angle actuator: on a real bench the operator sets it by
+        #: hand; here a test (or a script) plays the hand and sets this.
+        self.hand_angle_deg = 0.0
         self.description = build_description(rig, options)
         self.plant = build_plant(rig, options)
         n = len(self.description.channels)
@@ -391,8 +394,8 @@ class SimulatedDevice:
 
     def _angle(self, t_ns: np.ndarray) -> np.ndarray:
         servo = next((a for a in self.actuators.values() if a.info.kind == ActuatorKind.ANGLE), None)
-        if servo is None:
-            return np.zeros(t_ns.shape)
+        if servo is None:  # a model set by hand: the simulated hand is whoever sets hand_angle_deg
+            return np.full(t_ns.shape, math.radians(self.hand_angle_deg))
         return np.radians(servo.position_at(t_ns))
 
     def _emit_frames(self, n_frames: int) -> None:
