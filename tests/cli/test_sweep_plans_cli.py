@@ -40,51 +40,50 @@ def events_of(path, kind) -> list:
         return [e for e in r.events() if e.kind == kind]
 
 
-def model_curve(rig, stall_deg=12.0):
-    """The simulator's own section model (taprig.sim.airfoil, as taprig.sim.plant builds it) on a fine grid."""
-    from taprig.sim.airfoil import AirfoilFlow, StallModel
+def model_curve(rig):
+    """Cl of the simulator's own section model for ``rig`` (the plant a sim:// board runs, between the tunnel's
+    walls where the rig states them: docs/simulator.md) on a fine grid of angles [rad]."""
+    from taprig.sim.options import SimOptions
+    from taprig.sim.plant import build_plant
 
-    layout = rig.tap_layout()
-    flow = AirfoilFlow(rig.section.shape, layout.x_c, layout.upper,
-                       StallModel(critical_angle=math.radians(stall_deg), slope_factor=0.9))
     alpha = np.radians(np.arange(-4.0, 16.0, 0.05))
-    return alpha, flow.pressures(alpha).cl
+    return alpha, build_plant(rig, SimOptions()).airfoil.pressures(alpha).cl
 
 
 def test_up_and_down_past_the_stall_finds_the_models_stall_and_slope(tmp_path, capsys):
     out = tmp_path / "s.taprig"
-    code = main(["sweep", "--rig", NACA, "--port", FAST, "--from-deg", "-2", "--to-deg", "15", "--step-deg", "1",
+    code = main(["sweep", "--rig", NACA, "--port", FAST, "--from-deg", "5", "--to-deg", "15", "--step-deg", "0.5",
                  "--up-and-down", "--past-stall", "2", *PACE, "-o", str(out)])
     captured = capsys.readouterr()
     assert code == 0, captured.err
     records = records_of(out)
-    legs = [(r["leg"], round(math.degrees(r["plan_alpha_rad"]))) for r in records]
-    # the model's maximum lies at its critical angle, 12° (sim option stall_deg; zero-lift angle 0 by symmetry):
-    # the way up ends 2 points past it, at 14°, and comes back down without repeating the top
-    assert legs == [("up", a) for a in range(-2, 15)] + [("down", a) for a in range(13, -3, -1)]
     rig = load_rig(NACA)
-    # the simulated tunnel has no walls (docs/simulator.md), so the model is compared with the uncorrected fit
-    analysis = analyse_points(records, rig, "shape")
     alpha, cl = model_curve(rig)
-    model_stall = math.degrees(alpha[np.argmax(cl)])
-    assert analysis.stall.stalled
+    model_stall = math.degrees(alpha[np.argmax(cl)])  # 11.5° in this tunnel (the walls' upwash: 12° in free air)
+    # the way up ends 2 points past the measured maximum, and comes back down without repeating the top
+    legs = [(r["leg"], r["plan_alpha_rad"]) for r in records]
+    up = [a for leg, a in legs if leg == "up"]
+    assert [a for leg, a in legs if leg == "down"] == up[-2::-1]
+    analysis = analyse_points(records, rig)
+    top = analysis.stall.alpha_cl_max
+    assert analysis.stall.stalled and sum(a > top + 1e-9 for a in up) == 2 and max(up) < math.radians(15)
     assert abs(math.degrees(analysis.stall.alpha_stall) - model_stall) <= 0.5  # issue 11: within ±0.5°
-    linear = np.abs(alpha) <= math.radians(8)
-    model_slope = np.polyfit(alpha[linear], cl[linear], 1)[0]
+    # the slope over the linear range the analysis chose, against the model's over the same angles
+    lo, hi = analysis.fit.alpha_range
+    same = (alpha >= lo - 1e-9) & (alpha <= hi + 1e-9)
+    model_slope = np.polyfit(alpha[same], cl[same], 1)[0]
     assert analysis.fit.slope == pytest.approx(model_slope, rel=0.03)  # issue 11: within 3 % of the model's
     assert analysis.hysteresis is not None and analysis.unsteadiness is not None
     # every point records its setpoints and its taps' fluctuations; past the stall the suction side fluctuates
     assert all(r["setpoints"]["fan"] == 0.8 and r["fan"] == 0.8 and r["cp_rms"] for r in records)
-    assert analysis.unsteadiness.unsteady[[r["plan_alpha_rad"] > math.radians(13.5) for r in records]].all()
+    unsteady = analysis.unsteadiness.unsteady
+    assert unsteady[[a == max(up) for _, a in legs]].all() and not unsteady[list(analysis.fit.used)].any()
     assert "stall at" in captured.out and "hysteresis" in captured.out
-    # then back to safe values: the sweep itself sends them before the run's shutdown
-    with SessionReader(out) as r:
-        setpoints = [e.data for e in r.events() if e.kind == "setpoint"]
+    # then back to safe values: the sweep itself sends them, before the run's shutdown does
     last_point_ns = max(e.host_ns for e in SessionReader(out).points())
     with SessionReader(out) as r:
         after = [e.data for e in r.events() if e.kind == "setpoint" and e.host_ns > last_point_ns]
     assert {(d["actuator"], d["value"]) for d in after[:2]} == {("fan", 0.0), ("alpha", 0.0)}
-    assert setpoints
 
 
 def test_venturi_fan_sweep_recovers_the_simulated_discharge_coefficient(tmp_path, capsys):
@@ -143,7 +142,9 @@ def _interrupt_after(monkeypatch, n):
 
 
 def test_an_interrupted_sweep_resumes_where_it_stopped_with_the_same_points(tmp_path, capsys, monkeypatch):
-    plan = ["--from-deg", "8", "--to-deg", "15", "--step-deg", "1", "--up-and-down", "--past-stall", "1", *PACE]
+    # the simulated section's lift peaks near 11.5° in this tunnel: on a 2° grid from 3° the maximum is at 11°
+    # by far (the model's Cl there is at least 10 % above its neighbours'), so each run turns at the same point
+    plan = ["--from-deg", "3", "--to-deg", "15", "--step-deg", "2", "--up-and-down", "--past-stall", "1", *PACE]
     whole, first, second = tmp_path / "whole.taprig", tmp_path / "first.taprig", tmp_path / "second.taprig"
     assert main(["sweep", "--rig", NACA, "--port", FAST, *plan, "-o", str(whole)]) == 0
     with monkeypatch.context() as m:
@@ -158,7 +159,7 @@ def test_an_interrupted_sweep_resumes_where_it_stopped_with_the_same_points(tmp_
     expected, resumed = records_of(whole), records_of(second)
     key = [(r["plan_index"], r["leg"], r["plan_alpha_rad"], r["fan"]) for r in expected]
     assert [(r["plan_index"], r["leg"], r["plan_alpha_rad"], r["fan"]) for r in resumed] == key
-    assert len(key) == 11  # up 8…13° (1 past the stall at 12°), down 12…8°
+    assert [round(math.degrees(a)) for _, _, a, _ in key] == [3, 5, 7, 9, 11, 13, 11, 9, 7, 5, 3]  # 1 past 11°
     assert [r.get("carried_from") is not None for r in resumed] == [True] * 4 + [False] * 7
     for a, b in zip(expected, resumed):  # the same flow, measured again: within the points' own uncertainty
         assert abs(a["shape"]["cl"] - b["shape"]["cl"]) <= 2 * math.hypot(a["shape"]["u_cl"], b["shape"]["u_cl"])
