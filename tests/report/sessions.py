@@ -36,12 +36,14 @@ def sweep_session(out: Path, rig: str, start: float = -4.0, stop: float = 14.0, 
 
 
 def fan_steps_session(out: Path, rig_path: Path, settings: tuple[float, ...], seed: int = 3, query: str = "",
-                      zero: bool = True) -> Path:
-    """A point captured at each fan setting of ``settings`` (after a wind-off zero) into ``out``."""
+                      zero: bool = True, calibration=None) -> Path:
+    """A point captured at each fan setting of ``settings`` (after a wind-off zero, unless ``zero`` is False) into
+    ``out``, reduced with ``calibration`` (recorded with the session) when given."""
     rig = load_rig(rig_path)
     url = f"sim://{rig_path}?seed={seed}&speed=max&watchdog_ms=0" + (f"&{query}" if query else "")
-    reducer = Reducer(rig)
-    acq = Acquisition(Link(url, heartbeat=False), rig, reducer, new_session(out, rig, url, reducer.ambient))
+    reducer = Reducer(rig, calibration)
+    acq = Acquisition(Link(url, heartbeat=False), rig, reducer,
+                      new_session(out, rig, url, reducer.ambient, calibration))
     fan = rig.actuator_of_kind(ActuatorKind.FAN)
     acq.open(500)
     try:

@@ -342,3 +342,27 @@ def test_upper_and_lower_differ_beyond_colour_and_negative_cp_is_up(sessions):
     u_at = {float(xc): point.record["u_cp"][n] for n, xc, up in zip(layout.names, layout.x_c, layout.upper) if up}
     u = np.array([u_at[float(v)] for v in x])
     assert np.all(np.abs(near - np.asarray(y, dtype=float)) <= 3 * u + 0.05)
+
+
+def test_a_forced_calibration_that_failed_its_checks_shows_no_number(tmp_path):
+    # DESIGN: a calibration that failed its own checks, used because forced, is a state: the cover says so and the
+    # table shows the state for every point (the linearity flag is invented for the test)
+    from datetime import datetime, timezone
+
+    from taprig.rig import Calibration, ChannelCalibration
+
+    cal = Calibration(rig_id="cylinder-13tap", date=datetime(2026, 3, 2, 9, 30, tzinfo=timezone.utc),
+                      channels={"c90": ChannelCalibration(zero_counts=0.0, gain=1.0, n_points=5, residual_rms=4.0,
+                                                          linearity_pct_fs=2.5,
+                                                          flags=("non-linearity 2.5 % FS beyond 0.5 %",))})
+    session = fan_steps_session(tmp_path / "forced.taprig", RIGS / "cylinder.toml", (0.5, 0.7), calibration=cal,
+                                zero=False)
+    pdf = tmp_path / "forced.pdf"
+    assert handout(session, "-o", pdf)[0] == 0
+    cover = " ".join(pdf_text(pdf, 1).split())
+    assert "FAILED ITS OWN CHECKS" in cover and "c90 (non-linearity 2.5 % FS beyond 0.5 %)" in cover
+    table = pdf_text(pdf, pdf_pages(pdf))
+    for label in ("fan 0.5", "fan 0.7"):
+        row = _row(table, label)
+        assert "BAD CALIBRATION" in row and "±" not in row
+    assert "±" not in pdf_text(pdf, 2)  # the theory page draws and states no number of this session
