@@ -148,8 +148,7 @@ def draw_lift(ax, content: SessionContent) -> None:
         return
     t = a.table
     alpha = t.alpha_rad * DEG
-    set_deg = t.alpha_set_rad * DEG
-    if np.isfinite(set_deg).any() and np.nanmax(set_deg) - np.nanmin(set_deg) < 1e-6 and np.isfinite(t.re).sum() > 1:
+    if reynolds_sweep(content):
         draw_reynolds(ax, content)  # a fan sweep at one angle: the lift against the Reynolds number
         return
     legs = np.array(t.leg)
@@ -195,19 +194,48 @@ def draw_lift(ax, content: SessionContent) -> None:
     ax.legend(fontsize=7, loc="upper left", framealpha=0.85)
 
 
-def draw_reynolds(ax, content: SessionContent) -> None:
-    """Cl against Re for a sweep of the fan at one angle (a Reynolds-number sweep)."""
+def reynolds_sweep(content: SessionContent) -> bool:
+    """True for a sweep of the fan at one commanded angle (several Reynolds numbers, one α)."""
+    a = content.analysis
+    if a is None or len(a.table) < 2:
+        return False
+    set_deg = a.table.alpha_set_rad * DEG
+    return bool(np.isfinite(set_deg).all() and np.ptp(set_deg) < 1e-6 and np.ptp(np.nan_to_num(a.table.re)) > 0)
+
+
+def draw_reynolds(ax, content: SessionContent, name: str = "cl", label: str = "Cl") -> None:
+    """A coefficient against Re for a sweep of the fan at one angle (a Reynolds-number sweep)."""
     t = content.analysis.table
     legs = np.array(t.leg)
-    for mask, style in ((legs != "down", UP if (legs == "down").any() else ONE_WAY), (legs == "down", DOWN)):
+    down = (legs == "down").any()
+    for mask, style in ((legs != "down", UP if down else ONE_WAY), (legs == "down", DOWN)):
         if mask.any():
-            _errorbar(ax, t.re[mask], t.cl[mask], t.u_cl[mask], style)
+            _errorbar(ax, t.re[mask], getattr(t, name)[mask], getattr(t, f"u_{name}")[mask],
+                      {**style, "label": f"{label}, {style['label']}" if down else label})
+    if name == "cl" and content.rig.balance is not None and np.isfinite(t.u_cl_balance).any():
+        _errorbar(ax, t.re, t.cl_balance, t.u_cl_balance, BALANCE)
     ax.set_xscale("log")
     ax.set_xlabel("Re (chord)")
-    ax.set_ylabel("Cl")
-    ax.set_title(f"Lift against the Reynolds number at α = {np.nanmean(t.alpha_set_rad) * DEG:.1f}°", fontsize=10)
+    ax.set_ylabel(label)
+    ax.set_title(f"{label} against Re at α = {np.nanmean(t.alpha_set_rad) * DEG:.1f}°", fontsize=9)
     ax.grid(True, lw=0.3, alpha=0.5, which="both")
     ax.legend(fontsize=7)
+
+
+def reynolds_results(content: SessionContent) -> list[str]:
+    """A Reynolds sweep's points in sentences (each coefficient with its uncertainty)."""
+    a = content.analysis
+    out = [f"A sweep of the fan at α = {np.nanmean(a.table.alpha_set_rad) * DEG:.1f}°: the coefficients against "
+           "the Reynolds number; no lift curve (one angle)."]
+    t = a.table
+    for i in np.argsort(t.re, kind="stable"):
+        parts = [f"Re {t.re[i]:.2g}"]
+        for name, label in (("cl", "Cl"), ("cd_p", "Cd_p"), ("cm_qc", "Cm¼")):
+            v = pm(getattr(t, name)[i], getattr(t, f"u_{name}")[i])
+            if v is not None:
+                parts.append(f"{label} {v}")
+        out.append(", ".join(parts) + (f" ({t.leg[i]})" if t.leg[i] else "") + ".")
+    return out
 
 
 def draw_polar(ax, content: SessionContent) -> None:

@@ -224,15 +224,26 @@ def _results(fig, lines: list[str], y: float, size: float = 8.0) -> None:
     w.bullets(lines)
 
 
+def reynolds_page(c: SessionContent, n: int):
+    fig = _page_with(c, "Coefficients against the Reynolds number", n)
+    F.draw_reynolds(fig.add_axes([0.1, 0.60, 0.82, 0.33]), c)
+    _results(fig, F.reynolds_results(c), 0.55)
+    F.draw_reynolds(fig.add_axes([0.1, 0.07, 0.36, 0.27]), c, "cd_p", "Cd_p")
+    F.draw_reynolds(fig.add_axes([0.58, 0.07, 0.36, 0.27]), c, "cm_qc", "Cm¼")
+    return fig
+
+
 def lift_page(c: SessionContent, n: int):
+    if F.reynolds_sweep(c):
+        return reynolds_page(c, n)
     fig = _page_with(c, "Lift curve, stall and hysteresis", n)
     ax = fig.add_axes([0.1, 0.56, 0.82, 0.38])
     F.draw_lift(ax, c)
     _results(fig, F.lift_results(c), 0.51)
     if c.analysis is not None and c.analysis.unsteadiness is not None:
-        F.draw_polar(fig.add_axes([0.08, 0.07, 0.25, 0.25]), c)
-        F.draw_moment(fig.add_axes([0.41, 0.07, 0.25, 0.25]), c)
-        F.draw_unsteadiness(fig.add_axes([0.73, 0.07, 0.23, 0.25]), c)
+        F.draw_polar(fig.add_axes([0.10, 0.07, 0.23, 0.25]), c)
+        F.draw_moment(fig.add_axes([0.42, 0.07, 0.23, 0.25]), c)
+        F.draw_unsteadiness(fig.add_axes([0.74, 0.07, 0.22, 0.25]), c)
     else:
         F.draw_polar(fig.add_axes([0.1, 0.07, 0.36, 0.27]), c)
         F.draw_moment(fig.add_axes([0.58, 0.07, 0.36, 0.27]), c)
