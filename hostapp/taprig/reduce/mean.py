@@ -14,6 +14,18 @@ a ratio of linear forms of the channel readings, Cp_i = n_i·p / b·p, so its se
 ∂Cp_i/∂p = (n_i − Cp_i b)/q (GUM §5.1.3) and U_Cp = J U_p Jᵀ carries the correlation through the shared reference
 channels (GUM §5.2.2). Each integrator is affine in Cp with weights w, so u²(C) = wᵀ U_Cp w, plus (shape-aware
 fit) the integrator's own error estimate in quadrature.
+
+Where the linearisation does not hold. Cp and the coefficients divide by q; the first-order budget drops the
+terms of order (u(q)/q)² (for 1/q alone the variance grows by about 8 (u(q)/q)², and the mean shifts by
+(u(q)/q)²). Past ``LINEAR_LIMIT_Q_REL`` = 0.05 (where those terms reach about 2 % of u, the precision a
+two-digit u claims) the mean's Cp and coefficient uncertainties come from a propagation of distributions instead
+(JCGM 101:2008, GUM Supplement 1): ``MC_DRAWS`` draws of the column means from N(p̄, U_p) (and of the static
+factor, when it is the reference), each reduced by the same functions as the estimate; ``u`` is the larger
+distance from the estimate to either end of the 95 % probabilistically symmetric coverage interval, divided by
+1.96 (so ŷ ± 1.96 u covers that interval, its asymmetry and the shift of the distribution from ŷ). A draw with no
+flow (q below the threshold) counts as an outcome off every scale; when more than 2.5 % of draws have none the
+interval is unbounded and u is NaN: the number is not shown with an uncertainty. The draws are seeded from the
+inputs, so the same block gives the same numbers (live and replay). ``uncertainty_method`` says which was used.
 """
 
 from __future__ import annotations
@@ -156,12 +168,21 @@ def _combined(weights: np.ndarray, cov: np.ndarray) -> float:
 
 
 def coefficients_of(method: str, weights: SectionWeights, cp: np.ndarray, alpha: float, cov: np.ndarray,
-                    own: tuple[float, float, float] = (0.0, 0.0, 0.0), uncertainties: bool = True) -> Coefficients:
+                    own: tuple[float, float, float] = (0.0, 0.0, 0.0), uncertainties: bool = True,
+                    draws: np.ndarray | None = None) -> Coefficients:
     """Apply an affine integrator and carry the Cp covariance through its weights (own error in quadrature);
-    ``uncertainties=False``: the values only, every uncertainty NaN."""
+    ``uncertainties=False``: the values only, every uncertainty NaN. With Monte Carlo ``draws`` of Cp (draws ×
+    taps) the measurement part is the draws' coverage interval (module docstring)."""
     res = weights.apply(cp, alpha)
-    u_meas = (_combined(weights.cl(alpha), cov), _combined(weights.cd_p(alpha), cov),
-              _combined(weights.moment, cov)) if uncertainties else (float("nan"),) * 3
+    if draws is not None and uncertainties:
+        d = weights.apply(draws, alpha)
+        u_meas = tuple(float(_interval_u(getattr(d, name), float(getattr(res, name))))
+                       for name in ("cl", "cd_p", "cm_qc"))
+    elif uncertainties:
+        u_meas = (_combined(weights.cl(alpha), cov), _combined(weights.cd_p(alpha), cov),
+                  _combined(weights.moment, cov))
+    else:
+        u_meas = (float("nan"),) * 3
     u = [float(np.hypot(m, o)) for m, o in zip(u_meas, own)]
     return Coefficients(method, float(res.cl), float(res.cd_p), float(res.cm_qc), u[0], u[1], u[2], *own)
 
@@ -248,6 +269,56 @@ def _dq_dp(reducer, plan: ColumnPlan, delta: np.ndarray, q: float) -> np.ndarray
     n = plan.taps.matrix(plan.scale.size)
     differential = -delta[ven.throat]
     return -n[ven.throat] * (q / differential) if differential > 0 else np.zeros(plan.scale.size)
+
+
+#: u(q)/q past which the first-order budget is replaced by a Monte Carlo (module docstring) [-].
+LINEAR_LIMIT_Q_REL = 0.05
+#: Draws of the Monte Carlo: the 2.5 % and 97.5 % points of 2 × 10⁴ draws are good to about 3 % of u
+#: (JCGM 101:2008 §7.2 asks 10⁶ for a 95 % interval to two digits; one digit is what u is shown with).
+MC_DRAWS = 20_000
+FIRST_ORDER = "first order (GUM, JCGM 100:2008 §5)"
+
+
+def monte_carlo_method(q_rel: float) -> str:
+    """The sentence naming the Monte Carlo propagation and why it was used."""
+    return (f"Monte Carlo (JCGM 101:2008, {MC_DRAWS} draws): u(q)/q = {q_rel:.2f} > {LINEAR_LIMIT_Q_REL:g}, "
+            "where the first-order budget is too small")
+
+
+@dataclass(frozen=True)
+class _Draws:
+    """Monte Carlo draws of a mean: Cp (draws × taps, NaN where a draw has no flow) and q (draws,)."""
+
+    cp: np.ndarray
+    q: np.ndarray
+
+
+def _interval_u(draws: np.ndarray, estimate) -> np.ndarray:
+    """u from draws along axis 0: the larger distance from ``estimate`` to either end of the 95 % symmetric
+    coverage interval / 1.96 (JCGM 101:2008 §7.7); NaN draws count as off the scale on both sides."""
+    d = np.asarray(draws, dtype=float)
+    bad = ~np.isfinite(d)
+    with np.errstate(invalid="ignore"):
+        lo = np.percentile(np.where(bad, -np.inf, d), 2.5, axis=0)
+        hi = np.percentile(np.where(bad, np.inf, d), 97.5, axis=0)
+        u = np.maximum(hi - estimate, estimate - lo) / 1.96
+    return np.where(np.isfinite(u), u, np.nan)
+
+
+def _monte_carlo(reducer, plan: ColumnPlan, p_mean: np.ndarray, cov_p: np.ndarray, column_bad: np.ndarray) -> _Draws:
+    """Draws of Cp and q from N(p̄, U_p) through the reducer's own Cp (module docstring), seeded by the inputs."""
+    good = ~column_bad
+    seed = np.frombuffer(np.nan_to_num(np.concatenate((p_mean, np.diag(cov_p)))).tobytes(), dtype=np.uint32)
+    rng = np.random.default_rng(np.random.SeedSequence(seed.tolist()))
+    values, vectors = np.linalg.eigh(cov_p[np.ix_(good, good)])
+    root = vectors * np.sqrt(np.clip(values, 0.0, None))
+    p = np.tile(np.where(good, p_mean, 0.0), (MC_DRAWS, 1))
+    p[:, good] += rng.standard_normal((MC_DRAWS, int(good.sum()))) @ root.T
+    cp, q, _, _ = reducer.pressure_coefficients(plan, p, np.tile(column_bad, (MC_DRAWS, 1)))
+    layout = reducer.layout
+    if layout.static_sensitivity is not None and layout.static_factor_u > 0.0:
+        cp = cp + layout.static_factor_u * rng.standard_normal((MC_DRAWS, 1)) * np.asarray(layout.static_sensitivity)
+    return _Draws(cp, np.asarray(q, dtype=float))
 
 
 #: What a mean computed with ``uncertainties=False`` states as its uncertainty method.
@@ -339,7 +410,16 @@ def _mean_of(reducer, plan: ColumnPlan, reduced, alpha: float, uncertainties: bo
     else:
         cov_cp = np.full((cp.size, cp.size), np.nan)
         u_q = float("nan")
-    plain, shape, excluded, integral_flags = _integrals(reducer, cp, tap_ok, alpha, cov_cp, uncertainties)
+    draws, method = None, FIRST_ORDER if uncertainties else VALUES_ONLY
+    if uncertainties and usable_q and reducer.layout.venturi is None and u_q > LINEAR_LIMIT_Q_REL * abs(q):
+        draws = _monte_carlo(reducer, plan, p_mean, cov_p, column_bad)
+        method = monte_carlo_method(u_q / abs(q))
+        u_cp_lin = np.sqrt(np.diag(cov_cp))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            scale = np.where(u_cp_lin > 0.0, _interval_u(draws.cp, cp) / u_cp_lin, np.nan)
+        cov_cp = cov_cp * np.outer(scale, scale)  # first-order correlations, Monte Carlo standard uncertainties
+        cov_cp[~tap_ok, :] = cov_cp[:, ~tap_ok] = np.nan
+    plain, shape, excluded, integral_flags = _integrals(reducer, cp, tap_ok, alpha, cov_cp, uncertainties, draws)
     flags |= integral_flags
     default = shape if shape is not None else plain
     corrected, wall = wall_corrected(reducer, default, alpha) if default is not None else (None, None)
@@ -364,13 +444,12 @@ def _mean_of(reducer, plan: ColumnPlan, reduced, alpha: float, uncertainties: bo
         cp_ideal=reducer.layout.venturi.cp_ideal if reducer.layout.venturi is not None else None,
         scan_flag_counts=count_flags(scan_flags, ScanFlag),
         assumptions=reducer.assumptions, reference_note=reducer.reference_note,
-        calibration_warning=reducer.calibration_warning,
-        **({} if uncertainties else {"uncertainty_method": VALUES_ONLY}),
+        calibration_warning=reducer.calibration_warning, uncertainty_method=method,
     )
 
 
 def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp: np.ndarray,
-               uncertainties: bool = True):
+               uncertainties: bool = True, draws: _Draws | None = None):
     """Plain and shape-aware coefficients of the mean Cp over the usable taps (values only: own errors NaN)."""
     contour = reducer.layout.contour
     if contour is None:
@@ -385,9 +464,10 @@ def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp
     xk, yk = contour.x_c[keep], contour.y_c[keep]
     kept = tuple(np.flatnonzero(keep).tolist())
     unknown = (float("nan"),) * 3
+    drawn = None if draws is None else draws.cp[:, cols]
     plain = coefficients_of("plain", reducer.plain_weights(kept), cpk, alpha, covk,
                             trapezoid_error_estimate(xk, yk, cpk, alpha) if uncertainties else unknown,
-                            uncertainties)
+                            uncertainties, drawn)
     fit = reducer.shape_integrator(kept)
     if fit is None:
         return plain, None, names, flags
@@ -396,7 +476,7 @@ def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp
         own = (float(result.u_cl), float(result.u_cd_p), float(result.u_cm_qc))
     else:
         own = unknown
-    return plain, coefficients_of("shape", fit.weights, cpk, alpha, covk, own, uncertainties), names, flags
+    return plain, coefficients_of("shape", fit.weights, cpk, alpha, covk, own, uncertainties, drawn), names, flags
 
 
 def balance_cl_u(lift_n: float, u_lift_n: float, cl_balance: float, q_pa: float, u_q_pa: float) -> float | None:

@@ -774,6 +774,7 @@ def point_record(mean: ReducedMean, seconds: float) -> dict:
         "corrected": _coefficients(mean.corrected),
         "lift_n": num(mean.lift_n), "cl_balance": num(mean.cl_balance), "u_cl_balance": num(mean.u_cl_balance),
         "mass_flow_kg_s": num(mean.mass_flow_kg_s), "u_mass_flow_kg_s": num(mean.u_mass_flow_kg_s),
+        "uncertainty_method": mean.uncertainty_method,
     }
 
 

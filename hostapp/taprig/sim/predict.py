@@ -44,6 +44,9 @@ class Prediction:
     u_cl_zeroed: float
     saturated: tuple[str, ...]
     warnings: tuple[str, ...]
+    #: How u(Cp) and u(Cl) were propagated, nominal and zeroed (the reducer's ``uncertainty_method``).
+    method: str = ""
+    method_zeroed: str = ""
 
 
 def _mean(reducer: Reducer, block: RawBlock, alpha: float):
@@ -95,4 +98,4 @@ def predict(rig: Rig, speed: float | None = None, alpha_rad: float = math.radian
     if np.isfinite(u_cl_z) and u_cl_z > WARN_CL:
         warnings.append(f"u(Cl) {u_cl_z:.3g} after a zero (more than {WARN_CL:g}): the rig cannot resolve Cl")
     return Prediction(float(speed), alpha_rad, q, nominal.u_q_pa, zeroed.u_q_pa, u_cp, u_cp_z, u_cl, u_cl_z,
-                      tuple(saturated), tuple(warnings))
+                      tuple(saturated), tuple(warnings), nominal.uncertainty_method, zeroed.uncertainty_method)

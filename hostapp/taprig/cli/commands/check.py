@@ -104,13 +104,21 @@ def _prediction_lines(rig: Rig) -> list[str]:
     except ReduceError as exc:
         return [f"predicts: {exc}"]
     def pair(nominal: float, zeroed: float, fmt: str) -> str:
-        return f"{nominal:{fmt}} nominal, {zeroed:{fmt}} after a wind-off zero"
+        def one(x: float) -> str:  # NaN: the 95 % interval reaches "no flow" (q itself uncertain past zero)
+            return f"{x:{fmt}}" if math.isfinite(x) else "unbounded (q may be zero)"
+        return f"{one(nominal)} nominal, {one(zeroed)} after a wind-off zero"
     lines = [f"predicts at the design speed {p.speed:g} m/s (α {math.degrees(p.alpha_rad):g}°, datasheet bands, "
              f"standard uncertainties): q {p.q:.4g} Pa, u(q) {pair(p.u_q, p.u_q_zeroed, '.3g')} Pa"]
     if math.isfinite(p.u_cp_zeroed):
         lines.append(f"  largest u(Cp) {pair(p.u_cp, p.u_cp_zeroed, '.3f')}")
     if math.isfinite(p.u_cl_zeroed):
         lines.append(f"  u(Cl) {pair(p.u_cl, p.u_cl_zeroed, '.3f')}")
+    if math.isfinite(p.u_cp_zeroed) or math.isfinite(p.u_cl_zeroed):
+        methods = {"nominal": p.method, "after a zero": p.method_zeroed}
+        if len(set(methods.values())) == 1:
+            lines.append(f"  u(Cp), u(Cl) propagated by {p.method}")
+        else:
+            lines += [f"  u(Cp), u(Cl) {when} propagated by {m}" for when, m in methods.items()]
     lines += [f"WARNING: {w}" for w in p.warnings]
     return lines
 
