@@ -35,6 +35,14 @@ def sweep_session(out: Path, rig: str, start: float = -4.0, stop: float = 14.0, 
     return out
 
 
+def sweep_with(out: Path, rig: str, *options: str, seed: int = 2) -> Path:
+    """``taprig sweep`` of ``rig`` with the plan ``options`` (``--up-and-down``, ``--at-deg 4 --fans 0.4:1:0.2`` …)."""
+    code = main(["sweep", "--rig", str(RIGS / rig), "--port", FAST.format(seed=seed), "--settle", "0.3",
+                 "--average", "0.5", "--no-dashboard", "-o", str(out), *options])
+    assert code == 0, f"sweep of {rig} {' '.join(options)} failed with exit {code}"
+    return out
+
+
 def fan_steps_session(out: Path, rig_path: Path, settings: tuple[float, ...], seed: int = 3, query: str = "",
                       zero: bool = True, calibration=None) -> Path:
     """A point captured at each fan setting of ``settings`` (after a wind-off zero, unless ``zero`` is False) into

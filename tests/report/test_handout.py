@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from taprig.analysis import analyse_points
+from taprig.analysis import analyse_points, point_table
 from taprig.cli import main
 from taprig.report import point_state
 from taprig.report.style import pm
@@ -146,10 +146,10 @@ def test_the_cover_and_the_table_print_the_sessions_own_numbers(sessions, tmp_pa
     assert summary["assumptions"][0].split(":")[0] in " ".join(cover.split())
     # the table: q ± u(q) and Cl ± u(Cl) of every point as recorded
     table = "\n".join(pdf_text(pdf, k) for k in range(1, pdf_pages(pdf) + 1))
-    for r in records:
+    chosen = point_table(records)  # the analysis's choice of coefficients ("best")
+    for r, cl, u_cl in zip(records, chosen.cl, chosen.u_cl):
         assert shown(table, r["q_pa"], r["u_q_pa"]), f"q of {r['alpha_rad']} rad not printed as recorded"
-        c = r["shape"]
-        assert shown(table, c["cl"], c["u_cl"]), f"Cl of {r['alpha_rad']} rad not printed as recorded"
+        assert shown(table, cl, u_cl), f"Cl of {r['alpha_rad']} rad not printed as recorded"
     # the lift curve's numbers: the analysis of these records (GUM rounding, two significant digits of u)
     with SessionReader(path) as reader:
         from taprig.session.replay import rig_from_session
@@ -366,3 +366,37 @@ def test_a_forced_calibration_that_failed_its_checks_shows_no_number(tmp_path):
         row = _row(table, label)
         assert "BAD CALIBRATION" in row and "±" not in row
     assert "±" not in pdf_text(pdf, 2)  # the theory page draws and states no number of this session
+
+
+def test_an_up_and_down_sweep_shows_both_legs_and_its_hysteresis(tmp_path):
+    from tests.report.sessions import sweep_with
+
+    session = sweep_with(tmp_path / "ud.taprig", "cambered-balance.toml", "--from-deg", "-4", "--to-deg", "14",
+                         "--step-deg", "2", "--up-and-down")
+    with SessionReader(session) as r:
+        legs = [p.data.get("leg") for p in r.points()]
+    assert legs.count("up") >= 5 and legs.count("down") >= 5
+    pdf = tmp_path / "ud.pdf"
+    assert handout(session, "-o", pdf)[0] == 0
+    lift = " ".join(pdf_text(pdf, 2).split())
+    assert "sweep up" in lift and "sweep down" in lift
+    assert "Hysteresis: up and down legs" in lift and "one-way sweep" not in lift
+    cp = " ".join(pdf_text(pdf, k) for k in range(3, pdf_pages(pdf)))
+    assert cp.count(" down") >= legs.count("down") and cp.count(" up") >= legs.count("up")
+    assert_no_blank_page(pdf, tmp_path)
+
+
+def test_a_fan_sweep_at_one_angle_is_shown_against_the_reynolds_number(tmp_path):
+    from tests.report.sessions import sweep_with
+
+    session = sweep_with(tmp_path / "re.taprig", "cambered-balance.toml", "--at-deg", "4", "--fans", "0.4:1.0:0.2")
+    with SessionReader(session) as r:
+        records = [p.data for p in r.points()]
+    assert len(records) == 4 and len({round(p["re"], -3) for p in records}) == 4
+    pdf = tmp_path / "re.pdf"
+    assert handout(session, "-o", pdf)[0] == 0
+    page = " ".join(pdf_text(pdf, 2).split())
+    assert "Coefficients against the Reynolds number" in page and "no lift curve (one angle)" in page
+    table = point_table(records)  # the analysis's choice of coefficients ("best")
+    for re_d, cl, u in zip(table.re, table.cl, table.u_cl):
+        assert f"Re {re_d:.2g}, Cl {pm(cl, u)}" in page
