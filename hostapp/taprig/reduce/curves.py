@@ -11,6 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from taprig.physics.flow import cylinder_cp
+from taprig.physics.integration import ShapeFitIntegrator
 from taprig.reduce.mean import ReducedMean
 from taprig.rig import RigKind
 
@@ -44,6 +45,8 @@ def shape_fit_curve(reducer, mean: ReducedMean) -> Curve | None:
     keep = np.isfinite(cp) & ~np.isin(np.asarray(reducer.tap_names)[contour.columns], mean.excluded_taps)
     fit = reducer.shape_integrator(tuple(int(i) for i in np.flatnonzero(keep)))
     if fit is None:
+        return None
+    if not isinstance(fit, ShapeFitIntegrator):  # a cylinder's Fourier fit is not drawn along x/c
         return None
     x, upper, fitted = fit.fitted_cp(cp[keep])
     return Curve("shape fit through the taps", x, fitted, upper)

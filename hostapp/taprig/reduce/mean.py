@@ -35,7 +35,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from taprig.physics.integration import ShapeFitIntegrator, SectionWeights, trapezoid_weights
+from taprig.physics.integration import ModalCircleIntegrator, ShapeFitIntegrator, SectionWeights, trapezoid_weights
 from taprig.physics.uncertainty import effective_sample_count, propagate_covariance
 from taprig.physics.walls import WallCorrection, correct_2d
 from taprig.protocol import RawBlock
@@ -476,7 +476,8 @@ def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp
         own = (float(result.u_cl), float(result.u_cd_p), float(result.u_cm_qc))
     else:
         own = unknown
-    return plain, coefficients_of("shape", fit.weights, cpk, alpha, covk, own, uncertainties, drawn), names, flags
+    label = "modal" if isinstance(fit, ModalCircleIntegrator) else "shape"
+    return plain, coefficients_of(label, fit.weights, cpk, alpha, covk, own, uncertainties, drawn), names, flags
 
 
 def balance_cl_u(lift_n: float, u_lift_n: float, cl_balance: float, q_pa: float, u_q_pa: float) -> float | None:
@@ -512,10 +513,14 @@ def trapezoid_error_estimate(x: np.ndarray, y: np.ndarray, cp: np.ndarray, alpha
                  for name in ("cl", "cd_p", "cm_qc"))
 
 
-def shape_integrator_for(reducer, keep: tuple[int, ...]) -> ShapeFitIntegrator | None:
-    """A :class:`ShapeFitIntegrator` for the contour points ``keep`` of an airfoil rig (None for other kinds: the
-    fit's inviscid family is that of a section in a free stream, not of a wall bump or a cylinder)."""
+def shape_integrator_for(reducer, keep: tuple[int, ...]) -> ShapeFitIntegrator | ModalCircleIntegrator | None:
+    """A :class:`ShapeFitIntegrator` for the contour points ``keep`` of an airfoil rig, a
+    :class:`ModalCircleIntegrator` (the Fourier series of a cylinder's Cp) for a cylinder with three or more
+    points, else None (a wall bump: the fit's inviscid family is that of a section in a free stream)."""
     rig = reducer.rig
+    if rig.kind is RigKind.CYLINDER and len(keep) >= 3:
+        index = np.asarray(keep, dtype=int)
+        return ModalCircleIntegrator(reducer.layout.contour.x_c[index], reducer.layout.contour.y_c[index])
     if rig.kind is not RigKind.AIRFOIL or rig.section is None or len(keep) < 3:
         return None
     tap_layout = rig.tap_layout()

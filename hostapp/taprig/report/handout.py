@@ -93,12 +93,14 @@ def rests_on(c: SessionContent) -> tuple[list[str], list[str]]:
     if windows:
         rest.append(f"Each point is the mean of {', '.join(f'{w:g}' for w in windows)} s of scans taken once the flow "
                     "was steady; every ± is a standard uncertainty (k = 1) propagated to first order (GUM, JCGM "
-                    "100:2008 §5), the sensors' shared (systematic) errors included.")
+                    "100:2008 §5), or by Monte Carlo (JCGM 101:2008) where u(q)/q exceeds 0.05 (each point's "
+                    "record names which), the sensors' shared (systematic) errors included.")
     methods = sorted({m for m in (a.table.method if a is not None else ()) if m})
     if methods:
         words = {"plain": "the trapezoid over the taps", "shape": "the shape-aware fit through the taps",
                  "shape+walls": "the shape-aware fit through the taps, with 2-D wall corrections",
-                 "plain+walls": "the trapezoid over the taps, with 2-D wall corrections"}
+                 "plain+walls": "the trapezoid over the taps, with 2-D wall corrections",
+                 "modal": "the Fourier-series (modal) fit of the cylinder's Cp through the taps"}
         rest.append("Coefficients: " + "; ".join(words.get(m, m) for m in methods) + ".")
     omit = []
     if rig.kind in (RigKind.AIRFOIL, RigKind.CYLINDER, RigKind.BUMP):
