@@ -90,11 +90,12 @@ def rests_on(c: SessionContent) -> tuple[list[str], list[str]]:
     rig, a = c.rig, c.analysis
     rest = [f"{s[0].upper()}{s[1:]}." if not s.endswith(".") else s for s in c.assumptions]
     windows = sorted({_num(p.record.get("window_s")) for p in c.points if math.isfinite(_num(p.record.get("window_s")))})
+    methods_u = sorted({str(p.record.get("uncertainty_method") or "first order (GUM, JCGM 100:2008 §5)")
+                        for p in c.shown})
     if windows:
         rest.append(f"Each point is the mean of {', '.join(f'{w:g}' for w in windows)} s of scans taken once the flow "
-                    "was steady; every ± is a standard uncertainty (k = 1) propagated to first order (GUM, JCGM "
-                    "100:2008 §5), or by Monte Carlo (JCGM 101:2008) where u(q)/q exceeds 0.05 (each point's "
-                    "record names which), the sensors' shared (systematic) errors included.")
+                    "was steady; every ± is a standard uncertainty (k = 1), the sensors' shared (systematic) errors "
+                    "included, propagated by: " + "; ".join(methods_u) + ".")
     methods = sorted({m for m in (a.table.method if a is not None else ()) if m})
     if methods:
         words = {"plain": "the trapezoid over the taps", "shape": "the shape-aware fit through the taps",
