@@ -142,6 +142,10 @@ def test_the_cover_and_the_table_print_the_sessions_own_numbers(sessions, tmp_pa
                         ("frames_lost", "frames lost")):
         assert f"{words} {summary[name]}" in cover
     assert f"scans {summary['scans']}" in cover and "The record is whole" in cover
+    # how the uncertainties were propagated, as recorded with each point
+    flat = " ".join(cover.split())
+    methods = {r.get("uncertainty_method") for r in records if r.get("uncertainty_method")}
+    assert methods and all(method in flat for method in methods)
     # the reference-pressure assumption is the reducer's own sentence
     assert summary["assumptions"][0].split(":")[0] in " ".join(cover.split())
     # the table: q ± u(q) and Cl ± u(Cl) of every point as recorded
