@@ -309,3 +309,40 @@ def test_the_sessions_list_downloads_a_handout(browser, tmp_path):
     finally:
         page.close()
         assert "Traceback" not in end(review)
+
+
+def test_a_sweep_by_hand_from_the_page(browser, tmp_path):
+    # the 20-tap section with no angle servo: the page asks for each angle and the operator confirms it
+    text = (RIGS / "naca0012-20tap.toml").read_text()
+    head, servo = text.split('[[actuators]]\nid = 1\nkind = "angle"')
+    rig = tmp_path / "by-hand.toml"
+    rig.write_text(head + servo.split("\n\n", 1)[1])
+    live = spawn("live", "--rig", str(rig), "--port", "sim://?seed=3", "--no-browser", "--http-port", "0",
+                 "--sessions", str(tmp_path), "--quiet", cwd=tmp_path)
+    url = first_lines(live, 2)[0].split(": ", 1)[1]
+    page = Page(browser, url)
+    try:
+        page.until("() => window.taprig.frames > 2")
+        assert page.page.is_visible("#sweep") and "by hand" in page.text("#sw-hand-note")
+        set_actuator(page, "fan", 0.8)
+        page.until("() => document.getElementById('st-flow').textContent === 'FLOW'", 180)
+        for field, value in (("#sw-from", "0"), ("#sw-to", "4"), ("#sw-step", "2"), ("#sw-settle", "0.5"),
+                             ("#sw-avg", "0.5")):
+            page.page.fill(field, value)
+        page.page.click("#b-sweep")
+        page.until("() => document.getElementById('sw-hand-text').textContent.includes('α = +0.0°')", 60)
+        page.page.click("#sw-hand-ok")  # the asked angle, as offered
+        page.until("() => document.getElementById('sw-hand-text').textContent.includes('α = +2.0°')", 180)
+        page.page.fill("#sw-hand-angle", "2.5")  # the fixture reached 2.5°: the operator says so
+        page.page.click("#sw-hand-ok")
+        page.until("() => document.getElementById('sw-hand-text').textContent.includes('α = +4.0°')", 180)
+        page.shot("sweep-by-hand")
+        page.page.click("#sw-hand-stop")
+        page.until("() => document.getElementById('sweep-state').textContent === 'sweep stopped by the operator'", 60)
+        assert not page.page.is_visible("#sw-hand")
+        rows = page.page.eval_on_selector_all("#points tbody tr td:nth-child(3)", "tds => tds.map(t => t.textContent)")
+        assert rows[-2:] == ["0.00", "2.50"]  # the angles the operator set, as recorded
+        assert page.errors == []
+    finally:
+        page.close()
+        assert "Traceback" not in end(live)

@@ -88,6 +88,35 @@ class SweepStatus:
     total: int = 0
     message: str = ""
     stop: threading.Event = field(default_factory=threading.Event)
+    #: A sweep by hand waiting for the operator: ``{"alpha_deg", "leg", "index"}`` of the angle to set, else None.
+    asking: dict | None = None
+    answer: list = field(default_factory=list)
+    answered: threading.Event = field(default_factory=threading.Event)
+
+
+class PageOperator:
+    """The operator at the page sets each angle of a sweep by hand: the sweep waits (its status says which angle
+    it asks for) until :meth:`Station.hand_angle_set` answers, the operator stops the sweep, or the run ends."""
+
+    def __init__(self, acq, status: SweepStatus, notify: Callable[[str], None]):
+        self.acq, self.status, self.notify = acq, status, notify
+
+    def set_angle(self, point) -> float | None:
+        status = self.status
+        status.answer.clear()
+        status.answered.clear()
+        asked = math.degrees(point.alpha_rad)
+        status.asking = {"alpha_deg": asked, "leg": point.leg, "index": point.index}
+        self.notify(f"sweep by hand: set the model to α = {asked:+.1f}° ({point.leg}), hands clear, then confirm")
+        try:
+            while not status.answered.wait(0.2):
+                self.acq.check_running()  # the run is ending, or the board went safe: stop waiting
+                if status.stop.is_set():
+                    return None
+        finally:
+            status.asking = None
+        value = status.answer[0] if status.answer else None
+        return None if value is None else math.radians(value)
 
 
 class Display:
@@ -404,14 +433,20 @@ class Station(Display):
         return str(writer.path)
 
     def start_sweep(self, from_deg: float, to_deg: float, step_deg: float, settle_s: float = 1.0,
-                    average_s: float = 1.0) -> int:
-        """Step the angle actuator through the range on a thread, capturing a point at each; returns the count."""
+                    average_s: float = 1.0, up_and_down: bool = False, past_stall: int | None = None,
+                    by_hand: bool = False) -> int:
+        """Step the angle through the range on a thread (a :class:`taprig.runtime.plan.SweepPlan`: up, and back down
+        with ``up_and_down``; ending ``past_stall`` points past the stall, the angle then back to its safe value),
+        capturing a point at each; returns the most points it can take. ``by_hand`` (a rig with no angle
+        actuator): the operator sets each angle and answers with :meth:`hand_angle_set`. The fan stays as set."""
         from taprig.reduce.steady import SteadyCriteria
-        from taprig.runtime.sweep import run_sweep
+        from taprig.runtime.plan import PlanError, SweepPlan
+        from taprig.runtime.sweep import check_plan, run_plan
 
         servo = self.rig.actuator_of_kind(ActuatorKind.ANGLE)
-        if servo is None:
-            raise AcquisitionError("this rig has no angle actuator to sweep")
+        if servo is None and not by_hand:
+            raise AcquisitionError("this rig has no angle actuator to sweep; a sweep by hand sets each angle from "
+                                   "the page")
         if self.sweep.running:
             raise AcquisitionError("a sweep is already running; stop it first")
         for name, v in (("from", from_deg), ("to", to_deg), ("step", step_deg), ("settle", settle_s),
@@ -422,17 +457,25 @@ class Station(Display):
             raise AcquisitionError("sweep: step must be > 0°, settle 0–60 s and average 0–30 s")
         if to_deg < from_deg:
             raise AcquisitionError(f"sweep: 'to' ({to_deg:g}°) is below 'from' ({from_deg:g}°); give the range "
-                                   "from the lower angle up")
-        lo, hi = math.degrees(servo.min), math.degrees(servo.max)
-        if from_deg < lo - 1e-9 or to_deg > hi + 1e-9:
-            raise AcquisitionError(f"sweep: {from_deg:g}…{to_deg:g}° is outside the servo's limits {lo:g}…{hi:g}°")
+                                   "from the lower angle up (up and back down adds the way back)")
+        if servo is not None:
+            lo, hi = math.degrees(servo.min), math.degrees(servo.max)
+            if from_deg < lo - 1e-9 or to_deg > hi + 1e-9:
+                raise AcquisitionError(f"sweep: {from_deg:g}…{to_deg:g}° is outside the servo's limits {lo:g}…{hi:g}°")
         n = int(math.floor((to_deg - from_deg) / step_deg + 1e-9)) + 1
         if n > 200:
             raise AcquisitionError(f"sweep: {n} angles is more than 200; take a larger step")
-        self._check_may_move()
-        angles = [math.radians(from_deg + k * step_deg) for k in range(n)]
-        status = SweepStatus(running=True, total=n, message="sweep running")
+        try:
+            plan = SweepPlan("angle", tuple(math.radians(from_deg + k * step_deg) for k in range(n)), (),
+                             up_and_down, past_stall, by_hand)
+            check_plan(self.rig, plan)
+        except PlanError as exc:
+            raise AcquisitionError(f"sweep: {exc}") from None
+        if not by_hand:
+            self._check_may_move()
+        status = SweepStatus(running=True, total=plan.size_bound(), message="sweep running")
         self.sweep = status
+        operator = PageOperator(self.acq, status, self.notify) if by_hand else None
 
         def on_point(point) -> None:
             self.add_sweep_point(point)
@@ -440,8 +483,9 @@ class Station(Display):
 
         def run() -> None:
             try:
-                run_sweep(self.acq, angles, settle_s=settle_s, average_s=average_s, on_point=on_point,
-                          stop=status.stop, steady=SteadyCriteria())  # each point averaged once the flow is steady
+                run_plan(self.acq, plan, settle_s=settle_s, average_s=average_s, on_point=on_point,
+                         stop=status.stop, steady=SteadyCriteria(),  # each point averaged once the flow is steady
+                         operator=operator, safe_at_end=past_stall is not None)
                 status.message = "sweep stopped by the operator" if status.stop.is_set() else "sweep done"
             except (AcquisitionError, ReduceError, ValueError) as exc:
                 status.message = f"sweep ended: {exc}"
@@ -450,7 +494,19 @@ class Station(Display):
                 self.notify(status.message)
 
         threading.Thread(target=run, name="taprig-page-sweep", daemon=True).start()
-        return n
+        return plan.size_bound()
+
+    def hand_angle_set(self, angle_deg: float | None) -> None:
+        """The operator's answer to a sweep by hand: the angle set [°] (None stops the sweep there)."""
+        asking = self.sweep.asking
+        if asking is None:
+            raise AcquisitionError("no sweep is waiting for an angle set by hand")
+        if angle_deg is not None and not (math.isfinite(angle_deg) and -90 <= angle_deg <= 90):
+            raise AcquisitionError(f"the angle set must be a number of degrees within −90…90, got {angle_deg}")
+        if angle_deg is None:
+            self.sweep.stop.set()
+        self.sweep.answer[:] = [angle_deg]
+        self.sweep.answered.set()
 
     def add_sweep_point(self, point) -> None:
         """Add a sweep's point (:class:`taprig.runtime.sweep.SweepPoint`) to the table and the lift curve."""
@@ -470,7 +526,7 @@ class Station(Display):
         return {"mode": "live", "link": self._link(state), "setpoints": self._setpoints(),
                 "recording": self._recording(),
                 "sweep": {"running": self.sweep.running, "done": self.sweep.done, "total": self.sweep.total,
-                          "message": self.sweep.message},
+                          "message": self.sweep.message, "asking": self.sweep.asking},
                 "points": len(self.points), "needs_confirmation": self.needs_confirmation,
                 "halt": getattr(self.acq, "halt_reason", None)}
 

@@ -395,10 +395,28 @@ def _setpoint(station: Station, body: dict) -> dict:
 
 
 def _sweep(station: Station, body: dict) -> dict:
+    past = body.get("past_stall")
     total = station.start_sweep(_number(body, "from_deg", -90, 90), _number(body, "to_deg", -90, 90),
                                 _number(body, "step_deg", 0.01, 45, 2.0), _number(body, "settle_s", 0, 60, 1.0),
-                                _number(body, "average_s", 0.1, 30, 1.0))
+                                _number(body, "average_s", 0.1, 30, 1.0), _flag(body, "up_and_down"),
+                                None if past is None else int(_number(body, "past_stall", 0, 50)),
+                                _flag(body, "by_hand"))
     return {"angles": total}
+
+
+def _flag(body: dict, key: str) -> bool:
+    value = body.get(key, False)
+    if not isinstance(value, bool):
+        raise RequestProblem(f"'{key}' must be true or false, got {value!r}")
+    return value
+
+
+def _hand_angle(station: Station, body: dict) -> None:
+    """The operator's answer to a sweep by hand: ``{"angle_deg": A}`` (the angle set) or ``{"stop": true}``."""
+    if _flag(body, "stop"):
+        station.hand_angle_set(None)
+    else:
+        station.hand_angle_set(_number(body, "angle_deg", -90, 90))
 
 
 _LIVE_ACTIONS: dict[str, Callable[[Station, dict], dict | None]] = {
@@ -414,6 +432,7 @@ _LIVE_ACTIONS: dict[str, Callable[[Station, dict], dict | None]] = {
     "record-stop": lambda s, b: {"path": s.stop_recording()},
     "sweep-start": _sweep,
     "sweep-stop": lambda s, b: s.stop_sweep(),
+    "sweep-hand-angle": _hand_angle,
 }
 
 

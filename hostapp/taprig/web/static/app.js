@@ -325,8 +325,16 @@ function drawControls(f) {
   $("b-record").textContent = f.recording && f.recording.on ? "Stop recording" : "Start recording";
   $("b-record").disabled = !rig.can_record;
   const sw = f.sweep || {};
-  $("sweep-state").textContent = sw.running ? `${sw.done} of ${sw.total} points` : (sw.message || "");
+  $("sweep-state").textContent = sw.running ? `${sw.done} of at most ${sw.total} points` : (sw.message || "");
   $("b-sweep").disabled = !!sw.running; $("b-sweep-stop").disabled = !sw.running;
+  const ask = sw.asking;
+  $("sw-hand").hidden = !ask;
+  if (ask && stats.handIndex !== ask.index) {  // a new angle to set: show it, and offer it as the answer
+    stats.handIndex = ask.index;
+    $("sw-hand-text").textContent = `Set the model to α = ${ask.alpha_deg >= 0 ? "+" : ""}${fmt(ask.alpha_deg, 1)}° (${ask.leg}), hands clear, then confirm`;
+    $("sw-hand-angle").value = fmt(ask.alpha_deg, 1);
+  }
+  if (!ask) stats.handIndex = null;
 }
 
 function drawPlayback(f) {
@@ -509,7 +517,9 @@ function buildControls() {
     row.append(label, input, set, now); box.appendChild(row);
   }
   const servo = rig.actuators.find((a) => a.kind === "angle");
-  $("sweep").hidden = !servo;
+  const byHand = !servo && rig.kind === "airfoil";  // no servo: the operator sets each angle when asked
+  $("sweep").hidden = !servo && !byHand;
+  $("sw-hand-note").hidden = !byHand;
   if (servo) { $("sw-from").value = Math.max(servo.min, -4); $("sw-to").value = Math.min(servo.max, 12); }
   $("b-zero").onclick = () => control("zero", {}, "wind-off zero taken");
   $("b-capture").onclick = async () => { const o = await control("capture", { seconds: 1.0 }); if (o) say(`point ${o.point.index} captured (${o.point.state})`); };
@@ -521,10 +531,19 @@ function buildControls() {
   $("b-note").onclick = async () => { const t = $("note").value.trim(); if (!t) return; if (await control("note", { text: t })) { $("note").value = ""; } };
   $("b-sweep").onclick = async () => {
     if (!(await confirmFirst())) return;
+    const past = $("sw-past").value.trim();
     const o = await control("sweep-start", { from_deg: +$("sw-from").value, to_deg: +$("sw-to").value, step_deg: +$("sw-step").value,
-                                             settle_s: +$("sw-settle").value, average_s: +$("sw-avg").value });
-    if (o) say(`sweep of ${o.angles} angles started`);
+                                             settle_s: +$("sw-settle").value, average_s: +$("sw-avg").value,
+                                             up_and_down: $("sw-updown").checked, by_hand: byHand,
+                                             ...(past === "" ? {} : { past_stall: +past }) });
+    if (o) say(`sweep of at most ${o.angles} points started`);
   };
+  $("sw-hand-ok").onclick = async () => {
+    const v = Number($("sw-hand-angle").value);
+    if (!($("sw-hand-angle").value.trim() !== "" && v >= -90 && v <= 90)) { say("the angle set must be a number of degrees within −90…90", true); return; }
+    if (await control("sweep-hand-angle", { angle_deg: v })) say(`angle set by hand: ${fmt(v, 1)}°`);
+  };
+  $("sw-hand-stop").onclick = () => control("sweep-hand-angle", { stop: true }, "sweep by hand stopped");
   $("b-sweep-stop").onclick = () => control("sweep-stop", {}, "sweep stops after its current step");
   $("stop").onclick = stopAll;
   $("resume").onclick = () => control("resume", {}, "control resumed: set the fan and the angle again");
