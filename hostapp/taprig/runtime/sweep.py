@@ -55,17 +55,18 @@ def wait_device_time(acq: Acquisition, seconds: float, timeout_s: float) -> None
     """Block until ``seconds`` of device time have passed, counting only time that scans cover.
 
     Device time restarts when the board reboots (a reset or a replug), so progress is summed block by block
-    rather than taken as a difference from the start.
+    rather than taken as a difference from the start. Only scans that reached the host after the call count: the
+    blocks still queued for reduction were on their way before (a command just sent has not acted on them).
     """
-    latest = acq.hub.latest
-    previous = latest.block.t_ns[-1] if latest is not None and latest.block is not None else None
+    started_ns = time.time_ns()
+    previous = None
     elapsed = 0
     deadline = time.monotonic() + timeout_s
     with acq.hub.subscribe() as sub:
         while time.monotonic() < deadline:
             acq.check_running()  # the board went safe, or the run is ending: stop waiting, say why
             state = sub.get(timeout=min(0.5, max(0.0, deadline - time.monotonic())))
-            if state is None or state.block is None:
+            if state is None or state.block is None or state.host_ns < started_ns:
                 continue
             first, last = int(state.block.t_ns[0]), int(state.block.t_ns[-1])
             if previous is None or last < previous:  # the first block seen, or the board restarted
