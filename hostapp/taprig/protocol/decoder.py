@@ -63,6 +63,13 @@ class StreamDecoder:
     ``receiver`` says which end decodes (PROTOCOL.md §1): ``"host"`` (the default) interprets only device → host
     types and counts a well-formed host → device frame as an unknown type; ``"device"`` the converse (a board's
     command reader, the simulator); ``"any"`` interprets both (a capture of both directions, tests).
+
+    Holding (``feed(data, tag=...)``): a reader that wants blocks of many chunks (a fast replay) gives each chunk a
+    tag (its arrival time); the ``SAMPLES`` of tagged chunks are then held past the end of the call, so that runs
+    of one channel set come out as one block spanning chunks, and each such block's per-scan tags are kept for
+    :meth:`take_tags`. A block still comes out, as always, before any other message and on a change of channel
+    set; :meth:`flush` hands out what is held. The items, their order and the counters are those of untagged
+    feeding; only the blocks' boundaries differ.
     """
 
     def __init__(self, description: Description | None = None, receiver: str = "host"):
@@ -82,6 +89,9 @@ class StreamDecoder:
         self._time_ref: tuple[int, int] | None = None
         self._pending: list[tuple] = []
         self._pending_layout: SampleLayout | None = None
+        self._pending_scans = 0
+        self._tag: object = None  # the tag of the chunk being fed (None: not holding)
+        self._tags: list[np.ndarray] = []  # per tagged block handed out, its scans' tags
         self._after_boot = False  # a BOOT frame was seen: the next stream starts at scan 0
         self._after_outage = False  # the link was down: a sequence that went back means the board rebooted
         self._late_frame = False
@@ -102,8 +112,32 @@ class StreamDecoder:
         """The latest ``DESCRIPTION`` received, else the one given to the constructor."""
         return self._description
 
-    def feed(self, data: bytes) -> list:
-        """Take the next chunk of the stream; return the items completed by it (possibly none)."""
+    @property
+    def pending_scans(self) -> int:
+        """Scans decoded but not yet handed out (held from tagged chunks)."""
+        return self._pending_scans
+
+    def flush(self) -> list:
+        """Hand out the held ``SAMPLES`` as a block (a list of at most one item)."""
+        items: list = []
+        try:
+            self._flush(items)
+        except Exception:
+            self._counters.undecodable += 1
+            self._drop_pending()
+        return items
+
+    def take_tags(self) -> list[np.ndarray]:
+        """The per-scan tags of each block from tagged chunks handed out since the last call, in order (int64)."""
+        tags, self._tags = self._tags, []
+        return tags
+
+    def feed(self, data: bytes, tag: int | None = None) -> list:
+        """Take the next chunk of the stream; return the items completed by it (possibly none).
+
+        ``tag`` (an int, e.g. the chunk's arrival time): hold this chunk's ``SAMPLES`` (see the class docstring).
+        """
+        self._tag = tag
         if not isinstance(data, bytes):
             data = bytes(data)
         counters = self._counters
@@ -124,13 +158,14 @@ class StreamDecoder:
                     self._frame(part, items)
                 except Exception:  # never raise, whatever the input: a frame no check foresaw is undecodable
                     counters.undecodable += 1
-                    self._pending = []
+                    self._drop_pending()
                     self._scan_next = self._time_ref = None
-        try:
-            self._flush(items)
-        except Exception:
-            counters.undecodable += 1
-            self._pending = []
+        if tag is None:  # an untagged chunk's blocks come out now
+            try:
+                self._flush(items)
+            except Exception:
+                counters.undecodable += 1
+                self._drop_pending()
         if len(tail) > MAX_ENCODED:
             # counted now, skipped up to the next delimiter: the carry never grows past one legal frame
             counters.oversize += 1
@@ -228,7 +263,10 @@ class StreamDecoder:
         if layout is not self._pending_layout:
             self._flush(items)
             self._pending_layout = layout
-        self._pending.append((view, t0_ns, period_ns, scan0, n_scans))
+        if self._pending and (self._pending[-1][5] is None) != (self._tag is None):
+            self._flush(items)  # held scans and untagged ones never share a block
+        self._pending.append((view, t0_ns, period_ns, scan0, n_scans, self._tag))
+        self._pending_scans += n_scans
 
     def _cache_layout(self, mask: int) -> SampleLayout | None:
         if len(self._layouts) >= _LAYOUT_CACHE_LIMIT:
@@ -281,15 +319,25 @@ class StreamDecoder:
             return
         layout = self._pending_layout
         counts = layout.to_counts([p[0] for p in pending])
+        tagged = pending[0][5] is not None
         if len(pending) == 1:
-            _, t0_ns, period_ns, scan0, n_scans = pending[0]
+            _, t0_ns, period_ns, scan0, n_scans, tag = pending[0]
             k = np.arange(n_scans, dtype=np.int64)
             t_ns, scan_index = t0_ns + k * period_ns, scan0 + k
+            tags = np.full(n_scans, tag, dtype=np.int64) if tagged else None
         else:
-            heads = np.array([p[1:] for p in pending], dtype=np.int64)
+            heads = np.array([p[1:5] for p in pending], dtype=np.int64)
             sizes = heads[:, 3]
             k = np.arange(int(sizes.sum()), dtype=np.int64) - np.repeat(np.cumsum(sizes) - sizes, sizes)
             t_ns = np.repeat(heads[:, 0], sizes) + k * np.repeat(heads[:, 1], sizes)
             scan_index = np.repeat(heads[:, 2], sizes) + k
-        items.append(RawBlock(counts, layout.channels, t_ns, scan_index))
+            tags = np.repeat(np.array([p[5] for p in pending], dtype=np.int64), sizes) if tagged else None
+        block = RawBlock(counts, layout.channels, t_ns, scan_index)
+        self._drop_pending()
+        items.append(block)
+        if tags is not None:
+            self._tags.append(tags)
+
+    def _drop_pending(self) -> None:
         self._pending = []
+        self._pending_scans = 0
