@@ -241,9 +241,14 @@ class ShapeFitIntegrator:
     ``cp_noise`` (a ridge that keeps few taps well posed). The fitted Cp is integrated round the dense panel
     contour, so the integrator is affine in the tap Cp: :attr:`weights`.
 
-    Error estimate (one standard deviation, root sum of squares of three parts): the fit residual treated as
-    noise and propagated through the weights, the change when the fit uses one mode fewer or one more, and the
-    change when the panel model has half the panels (the panel method's own discretisation error).
+    Error estimate (one standard deviation, root sum of squares of its parts): the fit residual treated as
+    noise and propagated through the weights, the change when the fit uses one mode fewer or one more, the
+    change when the panel model has half the panels (the panel method's own discretisation error), and, with a
+    ``section_tolerance`` δ, the section mismatch: the model is made as the section is drawn, the rig's section
+    is not, and the pressure family of a slightly other section integrates the same taps to a slightly other
+    drag. Two parts in quadrature, each the larger change of the two signs: the family of the section with its
+    thickness grown or shrunk until its surface moves by δ at the thickest point, y' = y_c + (1 ± δ/t_max)(y −
+    y_c), and the family with a parabolic camber ± δ·4x(1 − x) added (taps at the same x/c on each).
 
     Parameters
     ----------
@@ -287,7 +292,8 @@ class ShapeFitIntegrator:
     """
 
     def __init__(self, shape: SectionShape, tap_x_c: ArrayLike, tap_upper: ArrayLike, *, n_panels: int | None = None,
-                 n_modes: int | None = None, cp_noise: float = 0.02, model: PanelModel | None = None) -> None:
+                 n_modes: int | None = None, cp_noise: float = 0.02, model: PanelModel | None = None,
+                 section_tolerance: float = 0.0) -> None:
         x = np.asarray(tap_x_c, dtype=float).ravel()
         upper = np.broadcast_to(np.asarray(tap_upper, dtype=bool), x.shape).copy()
         if x.size < 3:
@@ -307,6 +313,12 @@ class ShapeFitIntegrator:
         coarse = PanelModel(shape, max(16, self.model.n_panels // 2))
         self._alternatives = [self._build(self.model, m)[0] for m in {max(k - 1, 0), k + 1} - {k}]
         self._alternatives.append(self._build(coarse, k)[0])
+        self.section_tolerance = float(section_tolerance)
+        self._mismatch = []  # pairs of weights (+δ, −δ): thickness, camber
+        if self.section_tolerance > 0.0:
+            for pair in _mismatched_sections(shape, self.section_tolerance):
+                self._mismatch.append([self._build(PanelModel(other, self.model.n_panels if n_panels else None), k,
+                                                   other.arc_length_at(x, upper))[0] for other in pair])
         taps = self._basis(self.model, self._tap_s, x, upper, k)
         # Tap residual r = cp − B a = (I − B P) cp − B a_prior; dof from the effective parameter count tr(B P).
         self._residual = np.eye(x.size) - taps @ self._projector
@@ -321,9 +333,10 @@ class ShapeFitIntegrator:
         return np.stack([np.ones_like(u0), 0.5 * (u0 * u0 + u90 * u90), 0.5 * (u0 * u0 - u90 * u90), u0 * u90, *modes],
                         axis=1)
 
-    def _build(self, model: PanelModel, k: int):
-        """Weights of the integrator with ``model`` and k modes, the tap → coefficient projector, prior offsets."""
-        taps = self._basis(model, self._tap_s, self.tap_x_c, self.tap_upper, k)
+    def _build(self, model: PanelModel, k: int, tap_s: np.ndarray | None = None):
+        """Weights of the integrator with ``model`` and k modes, the tap → coefficient projector, prior offsets
+        (``tap_s``: the taps' arc lengths on ``model``'s shape, default the shape's own)."""
+        taps = self._basis(model, self._tap_s if tap_s is None else tap_s, self.tap_x_c, self.tap_upper, k)
         node_upper = np.arange(model.node_s.size) <= int(np.argmin(model.node_x))
         dense = self._basis(model, model.node_s, model.node_x, node_upper, k)
         prior_mean = np.zeros(4 + k)
@@ -350,6 +363,9 @@ class ShapeFitIntegrator:
         sigma = np.sqrt(np.sum(residual * residual, axis=-1) / self._dof)
         alpha = np.asarray(alpha_rad, dtype=float)
         spread = [self._spread(w.apply(cp, alpha_rad), result) for w in self._alternatives]
+        for pair in self._mismatch:
+            both = [self._spread(w.apply(cp, alpha_rad), result) for w in pair]
+            spread.append(tuple(np.maximum(a, b) for a, b in zip(*both)))
         stat = [sigma * np.linalg.norm(w, axis=-1) for w in
                 (self.weights.cl(alpha), self.weights.cd_p(alpha), self.weights.moment)]
         u = [np.sqrt(stat[i] ** 2 + sum(s[i] ** 2 for s in spread)) for i in range(3)]
@@ -461,3 +477,19 @@ class ModalCircleIntegrator:
         phi = np.concatenate((np.linspace(0.0, np.pi, points), -np.linspace(0.0, np.pi, points)))
         dense = np.hstack((np.ones((phi.size, 1)), np.cos(np.outer(phi, k)), np.sin(np.outer(phi, k)))) @ coef
         return 0.5 * (1.0 - np.cos(phi)), phi >= 0.0, dense
+
+
+def _mismatched_sections(shape: SectionShape, tolerance: float) -> list[tuple[SectionShape, SectionShape]]:
+    """(thicker, thinner) and (camber added, camber taken off) versions of ``shape`` whose surface moves by
+    ``tolerance`` [y/c] at most (see :class:`ShapeFitIntegrator`)."""
+    x, y = shape.x, shape.y
+    upper_y, lower_y = shape.surface_y(np.clip(x, 0.0, 1.0), True), shape.surface_y(np.clip(x, 0.0, 1.0), False)
+    camber = 0.5 * (upper_y + lower_y)
+    grid = np.linspace(0.0, 1.0, 201)
+    t_max = float(np.max(0.5 * (shape.surface_y(grid, True) - shape.surface_y(grid, False))))
+    scale = tolerance / t_max if t_max > 0.0 else 0.0
+    bump = tolerance * 4.0 * x * (1.0 - x)
+    out = []
+    for make in (lambda sign: camber + (1.0 + sign * scale) * (y - camber), lambda sign: y + sign * bump):
+        out.append(tuple(SectionShape(f"{shape.name} (mismatch)", x, make(sign)) for sign in (1.0, -1.0)))
+    return out

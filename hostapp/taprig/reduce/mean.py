@@ -525,4 +525,7 @@ def shape_integrator_for(reducer, keep: tuple[int, ...]) -> ShapeFitIntegrator |
         return None
     tap_layout = rig.tap_layout()
     index = np.asarray(keep, dtype=int)
-    return ShapeFitIntegrator(rig.section.shape, np.asarray(tap_layout.x_c)[index], np.asarray(tap_layout.upper)[index])
+    # the section as built differs from the drawing by up to the rig's stated surface tolerance: the fit's
+    # stated error carries what that does to the integrals (ShapeFitIntegrator, section mismatch)
+    return ShapeFitIntegrator(rig.section.shape, np.asarray(tap_layout.x_c)[index], np.asarray(tap_layout.upper)[index],
+                              section_tolerance=rig.section.surface_tolerance_c)
