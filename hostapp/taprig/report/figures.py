@@ -296,8 +296,8 @@ def lift_results(content: SessionContent) -> list[str]:
     if fit is not None:
         out.append(f"Lift slope {pm(fit.slope_per_deg, fit.u_slope_scatter * math.pi / 180)} per degree (scatter) "
                    f"± {fit.u_slope_systematic * math.pi / 180:.4f} (shared systematic part), "
-                   f"{fit.slope:.3f} per radian against thin-airfoil 2π = {THIN_AIRFOIL_SLOPE:.3f} "
-                   f"({100 * (fit.slope / THIN_AIRFOIL_SLOPE - 1):+.1f} %), linear over "
+                   f"{pm(fit.slope, fit.u_slope)} per radian in all against thin-airfoil 2π = "
+                   f"{THIN_AIRFOIL_SLOPE:.3f}, linear over "
                    f"{fit.alpha_range[0] * DEG:.1f}…{fit.alpha_range[1] * DEG:.1f}° ({fit.n_points} points).")
         out.append(f"Zero-lift angle {pm(fit.alpha_zero * DEG, fit.u_alpha_zero_scatter * DEG)}° (scatter) "
                    f"± {fit.u_alpha_zero_systematic * DEG:.2f}° (systematic).")
@@ -315,9 +315,13 @@ def lift_results(content: SessionContent) -> list[str]:
         out.append(text)
     h = a.hysteresis
     if h is not None:
-        out.append(f"Hysteresis: up and down legs differ beyond twice their uncertainty over "
-                   f"{h.alpha_range[0] * DEG:.1f}…{h.alpha_range[1] * DEG:.1f}°, loop area {h.area:.4f} rad."
-                   if h.present else "Hysteresis: up and down legs agree within twice their uncertainty.")
+        if h.present:
+            k = int(np.nanargmax(np.abs(h.delta)))
+            out.append(f"Hysteresis: up and down legs differ beyond twice their uncertainty over "
+                       f"{h.alpha_range[0] * DEG:.1f}…{h.alpha_range[1] * DEG:.1f}°; the largest difference "
+                       f"Cl(up) − Cl(down) is {pm(h.delta[k], h.u_delta[k])} at α = {h.alpha[k] * DEG:.1f}°.")
+        else:
+            out.append("Hysteresis: up and down legs agree within twice their uncertainty.")
     else:
         out.append("Hysteresis: " + a.reasons.get("hysteresis", "not measured") + ".")
     if a.moment is not None:
@@ -326,9 +330,10 @@ def lift_results(content: SessionContent) -> list[str]:
     b = a.balance
     if content.rig.balance is not None:
         if b is not None and np.isfinite(b.u_difference).any() and np.isfinite(a.table.u_cl_balance).any():
-            out.append(f"Balance against pressures: mean difference Cl(pressures) − Cl(balance) "
-                       f"{b.mean_difference:+.3f}, RMS {b.rms_difference:.3f}; agree within 2u at "
-                       f"{int(b.agree.sum())} of {b.agree.size} points.")
+            k = int(np.nanargmax(np.abs(b.difference)))
+            out.append(f"Balance against pressures: Cl(pressures) − Cl(balance) agree within twice their "
+                       f"uncertainty at {int(b.agree.sum())} of {b.agree.size} points; the largest difference is "
+                       f"{pm(b.difference[k], b.u_difference[k])} at α = {b.alpha[k] * DEG:.1f}°.")
         else:
             out.append("Balance: " + a.reasons.get("balance", "its uncertainty was not recorded (older session)")
                        + ".")

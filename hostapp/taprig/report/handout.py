@@ -294,7 +294,7 @@ def theory_page(c: SessionContent, n: int):
         cd = F.best_coefficients(p.record)
         v = pm(cd.get("cd_p"), cd.get("u_cd_p"))
         if v is not None:
-            lines.append(f"{p.label}: Cd_p {v} (pressure drag only), Re {_num(p.record.get('re')):.3g}.")
+            lines.append(f"{p.label}: Cd_p {v} (pressure drag only), Re {_num(p.record.get('re')):.2g}.")
     _results(fig, lines, 0.44)
     return fig
 
