@@ -772,6 +772,7 @@ def point_record(mean: ReducedMean, seconds: float) -> dict:
         "u_cp": {t: num(c) for t, c in zip(mean.tap_names, mean.u_cp)},
         "plain": _coefficients(mean.plain), "shape": _coefficients(mean.shape),
         "corrected": _coefficients(mean.corrected),
+        "wall_alpha_rad": num(mean.wall.alpha) if mean.corrected is not None and mean.wall is not None else None,
         "lift_n": num(mean.lift_n), "cl_balance": num(mean.cl_balance), "u_cl_balance": num(mean.u_cl_balance),
         "mass_flow_kg_s": num(mean.mass_flow_kg_s), "u_mass_flow_kg_s": num(mean.u_mass_flow_kg_s),
         "uncertainty_method": mean.uncertainty_method,

@@ -208,7 +208,7 @@ def _point_row(data) -> dict:
     if "alpha_rad" in row:
         alpha = row.pop("alpha_rad")
         row["alpha_deg"] = None if alpha is None else float(commanded_deg(alpha))
-    for name in ("plan_alpha_rad",):  # a sweep's planned angle
+    for name in ("plan_alpha_rad", "wall_alpha_rad"):  # a sweep's planned angle, the wall-corrected angle
         if name in row:
             alpha = row.pop(name)
             row[name.replace("_rad", "_deg")] = None if alpha is None else float(commanded_deg(alpha))
