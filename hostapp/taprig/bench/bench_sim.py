@@ -156,6 +156,8 @@ def run(quick: bool) -> list[Record]:
         Record("sim 64ch x 2kHz compressed time (baseline: naive)", speedup, "x real time",
                1.0 / naive_s_per_s, speedup * naive_s_per_s, ">= 20"),
         Record("sim walled section: images solution, first use per rig", build_ms, "ms", None, None, "< 1000 ms"),
-        Record("sim section pressures, 64 angles (baseline: free air)", walled_us, "us per block", free_us,
-               free_us / walled_us, ">= 0.5"),
+        # a block of 64 scans with the servo slewing (64 distinct angles) is the worst case: at 2 kHz, 2 ms per
+        # block would be 6 % of a core while the angle moves
+        Record("sim section pressures, 64 angles, walls (baseline: free air)", walled_us, "us per block", free_us,
+               free_us / walled_us, "<= 2000"),
     ]
