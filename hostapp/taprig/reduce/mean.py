@@ -273,9 +273,10 @@ def _dq_dp(reducer, plan: ColumnPlan, delta: np.ndarray, q: float) -> np.ndarray
 
 #: u(q)/q past which the first-order budget is replaced by a Monte Carlo (module docstring) [-].
 LINEAR_LIMIT_Q_REL = 0.05
-#: Draws of the Monte Carlo: the 2.5 % and 97.5 % points of 2 × 10⁴ draws are good to about 3 % of u
-#: (JCGM 101:2008 §7.2 asks 10⁶ for a 95 % interval to two digits; one digit is what u is shown with).
-MC_DRAWS = 20_000
+#: Draws of the Monte Carlo: the 2.5 % and 97.5 % points of 4000 draws are good to about 6 % of u, enough for
+#: the one significant digit u is shown with (JCGM 101:2008 §7.2 asks 10⁶ for a 95 % interval to two digits);
+#: a display makes several full means a second, so the draws are kept few.
+MC_DRAWS = 4_000
 FIRST_ORDER = "first order (GUM, JCGM 100:2008 §5)"
 
 
