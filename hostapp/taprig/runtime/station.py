@@ -38,6 +38,7 @@ TREND_SECONDS = 300.0   # how far back the trend plot reaches
 TREND_RATE_HZ = 5.0     # trend samples per second kept for it
 DISPLAY_CPU_SHARE = 0.25  # the most of one core that display updates may take (their rate drops before that)
 BUDGET_RATE_HZ = 4.0    # full means (with the uncertainty budget) a second; display updates between take their u
+BUDGET_CPU_SHARE = 0.02  # the most of one core that the periodic full means may take (their rate drops before)
 BUDGET_Q_CHANGE = 0.1   # a full mean describes later windows' uncertainties while q is within 10 % (or 2 u(q)) of its own
 
 
@@ -133,6 +134,7 @@ class Display:
         self.min_interval = 1.0 / max_rate_hz
         self.budget_interval = 1.0 / budget_rate_hz
         self._budget: tuple | None = None  # ((reducer, alpha, full mean, its scans), monotonic time it was made)
+        self._budget_cost = 0.0  # thread CPU time [s] of the newest full mean
         self.frames: Hub[Frame] = Hub(history_len=1)
         self.notices: list[dict] = []  # what the operator was told, newest last (bounded)
         self.points: list[dict] = []  # captured points (viewframe.point_summary), in capture order
@@ -272,7 +274,8 @@ class Display:
         and the newest full mean (with uncertainties) to take them from, with the first and last scan index of
         its window.
 
-        A full mean (the GUM budget: most of a mean's cost) is made at most ``budget_rate_hz`` a second; between
+        A full mean (the GUM budget: most of a mean's cost) is made at most ``budget_rate_hz`` a second, and less
+        often when it costs more than ``BUDGET_CPU_SHARE`` of a core at that rate (a Monte Carlo budget); between
         them the values alone are computed and take the uncertainties of the newest full mean, as long as it still
         describes them: same reducer (calibration) and angle, same flow state, same taps left out and q within
         ``BUDGET_Q_CHANGE`` of its own (or within twice its uncertainty, near no flow). Otherwise a full mean of this
@@ -280,11 +283,14 @@ class Display:
         """
         full, made = self._budget if self._budget is not None else (None, 0.0)
         now = time.monotonic()
-        if full is not None and now - made < self.budget_interval and full[0] is reducer and full[1] == alpha_rad:
+        interval = max(self.budget_interval, self._budget_cost / BUDGET_CPU_SHARE)
+        if full is not None and now - made < interval and full[0] is reducer and full[1] == alpha_rad:
             mean = mean_of(False)
             if _described_by(mean, full[2]):
                 return mean, (full[2], full[3])
+        cpu = time.thread_time()
         mean = mean_of(True)
+        self._budget_cost = time.thread_time() - cpu
         self._budget = ((reducer, alpha_rad, mean, scans), now)
         return mean, (mean, scans)
 
