@@ -195,6 +195,9 @@ class Replay:
         Time source of a paced replay (tests pass a simulated one).
     batch_scans : int
         In a fast replay, scans gathered before one reduction call (one step).
+    hold : bool
+        In a fast replay, let the decoder hold the scans of many chunks and hand them out as one block per step
+        (the fastest); False: one block per chunk, as live (a display that averages the newest quarter second).
 
     Attributes ``rig``, ``ambient``, ``reducer``, ``meta``, ``start_ns`` (session start, ns since the epoch),
     ``first_t_ns`` (device time of the first scan, once seen), ``total_chunks`` and ``counters`` (so far).
@@ -202,7 +205,7 @@ class Replay:
 
     def __init__(self, session: str | Path | SessionReader, calibration: Calibration | None = None,
                  speed: float | None = None, seek_s: float = 0.0, clock: Clock | None = None,
-                 batch_scans: int = FAST_BATCH_SCANS):
+                 batch_scans: int = FAST_BATCH_SCANS, hold: bool = True):
         if speed is not None and not speed > 0:
             raise ValueError(f"replay speed must be > 0 (or None for as fast as possible); got {speed}")
         if not (seek_s >= 0 and math.isfinite(seek_s)):
@@ -222,7 +225,7 @@ class Replay:
         except Exception:
             self.close()
             raise
-        self.speed, self.seek_s, self.batch_scans = speed, float(seek_s), int(batch_scans)
+        self.speed, self.seek_s, self.batch_scans, self.hold = speed, float(seek_s), int(batch_scans), hold
         self.clock = clock or SystemClock()
         self.start_ns = session_start_ns(self.reader)
         self.total_chunks, _, first_ns, last_ns = self.reader.chunk_summary()
@@ -337,7 +340,7 @@ class Replay:
                     yield step(last_ns)
                     done += 1
             current = which
-            if fast:
+            if fast and self.hold:
                 take(decoder.feed(chunk.data, tag=chunk.host_ns), None)
                 last_ns = chunk.host_ns
                 if scans + decoder.pending_scans >= self.batch_scans:
@@ -346,8 +349,11 @@ class Replay:
             else:
                 take(decoder.feed(chunk.data), chunk.host_ns)
                 last_ns = chunk.host_ns
-                self._wait(chunk.host_ns)
-                yield step(chunk.host_ns)
+                if not fast:
+                    self._wait(chunk.host_ns)
+                    yield step(chunk.host_ns)
+                elif scans >= self.batch_scans:
+                    yield step(chunk.host_ns)
         take(decoder.flush(), None)
         if items:
             yield step(pending[-1][1][-1] if pending else seek_ns)
