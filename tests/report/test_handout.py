@@ -154,6 +154,10 @@ def test_the_cover_and_the_table_print_the_sessions_own_numbers(sessions, tmp_pa
     for r, cl, u_cl in zip(records, chosen.cl, chosen.u_cl):
         assert shown(table, r["q_pa"], r["u_q_pa"]), f"q of {r['alpha_rad']} rad not printed as recorded"
         assert shown(table, cl, u_cl), f"Cl of {r['alpha_rad']} rad not printed as recorded"
+        # V ± u(V) and Re ± u(Re) as the reduction recorded them (Re printed as (m ± u_m)ek)
+        assert r.get("u_v_ms") is not None and shown(table, r["v_ms"], r["u_v_ms"]), "V not printed as recorded"
+        k = int(math.floor(math.log10(r["re"])))
+        assert shown(table, r["re"] / 10**k, r["u_re"] / 10**k), f"Re of {r['alpha_rad']} rad not printed"
     # the lift curve's numbers: the analysis of these records (GUM rounding, two significant digits of u)
     with SessionReader(path) as reader:
         from taprig.session.replay import rig_from_session
@@ -404,3 +408,21 @@ def test_a_fan_sweep_at_one_angle_is_shown_against_the_reynolds_number(tmp_path)
     table = point_table(records)  # the analysis's choice of coefficients ("best")
     for re_d, cl, u in zip(table.re, table.cl, table.u_cl):
         assert f"Re {re_d:.2g}, Cl {pm(cl, u)}" in page
+
+
+def test_the_table_states_v_and_re_with_the_records_uncertainty_or_says_it_is_not_stated():
+    from types import SimpleNamespace
+
+    from taprig.report.handout import TABLE_COLUMNS, table_rows
+    from taprig.rig import RigKind
+
+    new = {"alpha_rad": 0.0, "q_pa": 250.0, "u_q_pa": 2.0, "v_ms": 20.3576, "u_v_ms": 0.0833, "re": 135232.0,
+           "u_re": 616.0}
+    old = {k: v for k, v in new.items() if k not in ("u_v_ms", "u_re")}  # a session recorded before they were
+    points = [SimpleNamespace(record=r, label=name, state="", shown=True, saturated_taps=())
+              for name, r in (("new", new), ("old", old))]
+    rows = table_rows(SimpleNamespace(points=points, rig=SimpleNamespace(kind=RigKind.CYLINDER)))
+    v, re_ = TABLE_COLUMNS.index("V [m/s]"), TABLE_COLUMNS.index("Re")
+    assert rows[0][v] == pm(new["v_ms"], new["u_v_ms"]) == "20.358 ± 0.083"
+    assert rows[0][re_] == f"({pm(new['re'] / 1e5, new['u_re'] / 1e5)})e5" == "(1.3523 ± 0.0062)e5"
+    assert rows[1][v] == "not stated" and rows[1][re_] == "≈ 1.4e+05 (u not stated)"

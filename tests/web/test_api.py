@@ -192,6 +192,8 @@ def test_displayed_numbers_are_the_reducers_for_the_same_scans(live):
         assert shown["uncertainty_window"]["scan_index"][1] <= shown["window"]["scan_index"][1]
         # (an uncertainty that does not hold, NaN, is sent as null: JSON has no NaN)
         assert shown["flow"]["q_pa"] == [mean.q_pa, num(full.u_q_pa)]
+        assert shown["flow"]["v_ms"] == [mean.v_ms, num(full.u_v_ms)]
+        assert shown["flow"]["re"] == [mean.re, num(full.u_re)]
         assert shown["coefficients"]["cl"] == [mean.corrected.cl, num(full.corrected.u_cl)]
         assert shown["taps"]["cp"] == [float(c) for c in mean.cp]
         assert shown["taps"]["u_cp"] == [num(u) for u in full.u_cp]

@@ -31,7 +31,7 @@ inputs, so the same block gives the same numbers (live and replay). ``uncertaint
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -73,7 +73,7 @@ class ReducedMean:
 
     Per channel (block column order): ``p_pa``, ``u_p_pa``. Per tap (integration order): ``cp``, ``u_cp``,
     ``cov_cp`` (taps × taps), ``cp_ideal`` (venturi). Scalars: ``q_pa``, ``u_q_pa``, ``v_ms``, ``re``, ``mach``,
-    ``alpha_rad``. ``plain`` (trapezoid, always), ``shape`` (shape-aware fit, the default when the rig has a
+    ``alpha_rad``; ``u_v_ms``, ``u_re`` (:func:`flow_u`: NaN where V and Re have no stated uncertainty). ``plain`` (trapezoid, always), ``shape`` (shape-aware fit, the default when the rig has a
     section shape), ``default`` (the one to show), ``corrected`` (the default after 2-D wall corrections, with
     ``wall``), balance ``lift_n``/``cl_balance``, venturi ``mass_flow_kg_s``. ``flags``: OR of the used scans' and
     the mean's own :class:`ScanFlag` bits; ``used_scans`` of ``n_scans``; ``excluded_taps`` left out of the
@@ -114,6 +114,9 @@ class ReducedMean:
     calibration_warning: str = ""
     #: How u_cp and the coefficients' uncertainties were propagated ("first order (GUM)", or a Monte Carlo).
     uncertainty_method: str = "first order (GUM, JCGM 100:2008 §5)"
+    #: Standard uncertainties of the speed [m/s] and the Reynolds number [-] (:func:`flow_u`; NaN: none stated).
+    u_v_ms: float = math.nan
+    u_re: float = math.nan
 
     def __post_init__(self) -> None:
         for name in ("p_pa", "u_p_pa", "cp", "u_cp", "cov_cp", "cp_ideal"):
@@ -288,10 +291,12 @@ def monte_carlo_method(q_rel: float) -> str:
 
 @dataclass(frozen=True)
 class _Draws:
-    """Monte Carlo draws of a mean: Cp (draws × taps, NaN where a draw has no flow) and q (draws,)."""
+    """Monte Carlo draws of a mean: Cp (draws × taps, NaN where a draw has no flow), q and the absolute
+    freestream static p∞ [Pa] (draws,)."""
 
     cp: np.ndarray
     q: np.ndarray
+    p_inf: np.ndarray
 
 
 def _interval_u(draws: np.ndarray, estimate) -> np.ndarray:
@@ -319,7 +324,7 @@ def _monte_carlo(reducer, plan: ColumnPlan, p_mean: np.ndarray, cov_p: np.ndarra
     layout = reducer.layout
     if layout.static_sensitivity is not None and layout.static_factor_u > 0.0:
         cp = cp + layout.static_factor_u * rng.standard_normal((MC_DRAWS, 1)) * np.asarray(layout.static_sensitivity)
-    return _Draws(cp, np.asarray(q, dtype=float))
+    return _Draws(cp, np.asarray(q, dtype=float), plan.static_absolute.evaluate(p)[:, 0])
 
 
 #: What a mean computed with ``uncertainties=False`` states as its uncertainty method.
@@ -432,6 +437,7 @@ def _mean_of(reducer, plan: ColumnPlan, reduced, alpha: float, uncertainties: bo
     u_mass = venturi_mass_flow_u(reducer, plan, p_mean, cov_p, float(mass)) \
         if mass is not None and np.isfinite(mass) and usable_q and uncertainties else None
     u_p = np.sqrt(np.diag(cov_p)) if cov_p is not None else np.full(p_mean.size, np.nan)
+    u_v, u_re = flow_u(reducer, q, u_q, float(p_inf[0]), draws) if uncertainties and usable_q else (math.nan,) * 2
     return ReducedMean(
         n_scans=n_scans, used_scans=int(ref_ok.sum()),
         t_ns=(int(reduced.t_ns[0]), int(reduced.t_ns[-1])), tap_names=reducer.tap_names,
@@ -445,8 +451,64 @@ def _mean_of(reducer, plan: ColumnPlan, reduced, alpha: float, uncertainties: bo
         cp_ideal=reducer.layout.venturi.cp_ideal if reducer.layout.venturi is not None else None,
         scan_flag_counts=count_flags(scan_flags, ScanFlag),
         assumptions=reducer.assumptions, reference_note=reducer.reference_note,
-        calibration_warning=reducer.calibration_warning, uncertainty_method=method,
+        calibration_warning=reducer.calibration_warning, uncertainty_method=method, u_v_ms=u_v, u_re=u_re,
     )
+
+
+def flow_u(reducer, q: float, u_q: float, p_inf: float, draws: _Draws | None = None) -> tuple[float, float]:
+    """Standard uncertainties of a mean's speed V [m/s] and Reynolds number Re [-]: ``(u_V, u_Re)``.
+
+    Law of propagation of uncertainty (JCGM 100:2008 §5.1.2), inputs taken as uncorrelated (separate sensors):
+
+        u²(y) = (∂y/∂q)² u²(q) + (∂y/∂T)² u²(T) + (∂y/∂p_a)² u²(p_a),   y = V or Re = ρ V L / μ
+
+    with q [Pa] and u(q) the mean's, T [K] the run's temperature (air, or the water of a water rig) with
+    ``options.temperature_u``, p_a [Pa] the room's pressure with ``options.ambient_pressure_u`` where it is typed,
+    not measured (a typed room pressure is also the freestream static's datum, so p∞ moves with it). For water
+    V = √(2q/ρ), so ∂V/∂q = V/(2q) and u(V)/V = u(q)/(2q); for air the reducer's isentropic speed, of which
+    that is the low-Mach limit. ρ(T, p_a) and μ(T) are the reducer's fluid properties, so their dependence on
+    T and p_a is carried; the sensitivities are central differences of :meth:`Reducer.flow` itself. Held fixed
+    (exact): the reference length L, humidity and CO₂ fraction, γ.
+
+    Where the mean's uncertainties come from a Monte Carlo (u(q)/q > ``LINEAR_LIMIT_Q_REL``), the q part is taken
+    from the same draws instead (V and Re of every draw of q and p∞, its 95 % interval as for Cp, JCGM 101:2008
+    §7.7), and the ambient part, first order and independent of the draws, is added in quadrature.
+
+    V = √(2q/ρ) is undefined for q ≤ 0: NaN (no uncertainty stated) when q is not a positive finite number, u(q)
+    is not finite, or more than 2.5 % of the draws have no flow.
+    """
+    nan = (math.nan, math.nan)
+    if not (math.isfinite(q) and q > 0.0 and math.isfinite(u_q)):
+        return nan
+    base = reducer.ambient
+
+    def vr(dq=0.0, ambient=None, dp=0.0):
+        v, re, _ = reducer.flow(np.array([q + dq]), np.array([p_inf + dp]), ambient)
+        return np.array([float(v[0]), float(re[0])])
+
+    h = 1e-4 * q
+    ds = (vr(h) - vr(-h)) / (2 * h)  # [∂V/∂q, ∂Re/∂q]
+    opts = reducer.options
+    dt = 0.01  # K
+    dT = (vr(0.0, replace(base, temperature=base.temperature + dt))
+          - vr(0.0, replace(base, temperature=base.temperature - dt))) / (2 * dt)
+    typed = ONE in reducer.layout.static_absolute
+    u_pa = opts.ambient_pressure_u if typed else 0.0
+    dpa = 1.0  # Pa
+    dP = (vr(0.0, replace(base, pressure=base.pressure + dpa), dpa)
+          - vr(0.0, replace(base, pressure=base.pressure - dpa), -dpa)) / (2 * dpa)
+    ambient_part = np.hypot(dT * opts.temperature_u, dP * u_pa)
+    if draws is None:
+        q_part = np.abs(ds) * u_q
+    else:
+        v_d, re_d, _ = reducer.flow(draws.q, draws.p_inf)
+        flowing = draws.q > 0.0
+        if draws.cp.shape[1]:
+            flowing &= np.isfinite(draws.cp).any(axis=1)
+        estimate = vr()
+        q_part = np.array([float(_interval_u(np.where(flowing, d, np.nan), e)) for d, e in zip((v_d, re_d), estimate)])
+    u = np.hypot(q_part, ambient_part)
+    return tuple(float(x) if np.isfinite(x) else math.nan for x in u)
 
 
 def _integrals(reducer, cp: np.ndarray, tap_ok: np.ndarray, alpha: float, cov_cp: np.ndarray,

@@ -309,20 +309,23 @@ class Reducer:
         differential = -cp[:, self.layout.venturi.throat] * q
         return self._mass_flow(differential, plan, p)
 
-    def flow(self, q: np.ndarray, p_static: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    def flow(self, q: np.ndarray, p_static: np.ndarray | None = None,
+             ambient: Ambient | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Speed [m/s], Reynolds number on the reference length [-] and Mach number [-] from q = p0 − p∞ [Pa].
 
         Air: the isentropic relation from the stagnation state (the run's temperature and the room's pressure
         over its density, :func:`~taprig.physics.flow.stagnation_speed`) at the absolute freestream static
         ``p_static`` [Pa] (the room's pressure when not given or not finite); Mach from q/p∞. Water: Bernoulli.
+        ``ambient``: other room conditions than the reducer's (the fluid's properties taken at them).
         """
-        fluid = self.fluid
+        ambient = self.ambient if ambient is None else ambient
+        fluid = self.fluid if ambient is self.ambient else ambient.properties(self.rig.fluid.medium)
         q = np.asarray(q, dtype=float)
         length = self.layout.reference_length
         if np.isfinite(fluid.speed_of_sound):
-            p_inf = np.full(q.shape, self.ambient.pressure) if p_static is None else np.asarray(p_static, dtype=float)
-            p_inf = np.where(np.isfinite(p_inf) & (p_inf > 0.0), p_inf, self.ambient.pressure)
-            v = stagnation_speed(q, p_inf, self.ambient.pressure / fluid.density)
+            p_inf = np.full(q.shape, ambient.pressure) if p_static is None else np.asarray(p_static, dtype=float)
+            p_inf = np.where(np.isfinite(p_inf) & (p_inf > 0.0), p_inf, ambient.pressure)
+            v = stagnation_speed(q, p_inf, ambient.pressure / fluid.density)
             with np.errstate(invalid="ignore"):
                 mach = np.sign(q) * isentropic_mach(np.abs(np.nan_to_num(q)), p_inf)
             mach = np.where(np.isfinite(q), mach, np.nan)

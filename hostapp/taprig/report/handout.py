@@ -312,13 +312,15 @@ def cp_pages(c: SessionContent, first: int) -> list:
     return pages
 
 
-TABLE_COLUMNS = ("point", "state", "α set [°]", "q [Pa]", "Re (≈)", "Cl", "Cd_p", "Cm¼", "Cl balance", "ṁ [g/s]")
+TABLE_COLUMNS = ("point", "state", "α set [°]", "q [Pa]", "V [m/s]", "Re", "Cl", "Cd_p", "Cm¼", "Cl balance", "ṁ [g/s]")
 
 
 def table_rows(c: SessionContent) -> list[list[str]]:
     """The table of points: every number with its uncertainty; a point in a state shows the state, no numbers.
 
-    Re is written to two figures, as a description of the conditions (the reduction states no uncertainty of it).
+    V and Re with the uncertainties the reduction recorded (``u_v_ms``, ``u_re``). A point recorded before those
+    were stated, or one whose uncertainty does not hold (null), shows "not stated" for V and Re to two figures
+    marked ≈, a description of the conditions.
     """
     rows = []
     for p in c.points:
@@ -334,16 +336,28 @@ def table_rows(c: SessionContent) -> list[list[str]]:
         def coeff(name):
             return pm(cf.get(name), cf.get(f"u_{name}")) or "–"
 
-        re = _num(r.get("re"))
+        v, re = _num(r.get("v_ms")), _num(r.get("re"))
         rows.append(head + [
             pm(r.get("q_pa"), r.get("u_q_pa")) or "–",
-            f"{re:.1e}" if math.isfinite(re) else "–",
+            pm(v, r.get("u_v_ms")) or ("not stated" if math.isfinite(v) else "–"),
+            pm_exponent(re, r.get("u_re")) or (f"≈ {re:.1e} (u not stated)" if math.isfinite(re) else "–"),
             coeff("cl") if c.rig.kind is RigKind.AIRFOIL else "–",
             coeff("cd_p"), coeff("cm_qc") if c.rig.kind is RigKind.AIRFOIL else "–",
             pm(r.get("cl_balance"), r.get("u_cl_balance")) or "–",
             pm(r.get("mass_flow_kg_s"), r.get("u_mass_flow_kg_s"), 1e3) or "–",
         ])
     return rows
+
+
+def pm_exponent(value, u) -> str | None:
+    """``(m ± u_m)e k``: :func:`pm` of ``value`` and ``u`` over 10^k, k the exponent of ``value`` (a Reynolds
+    number's six digits would hide the two of its uncertainty), or None as :func:`pm`."""
+    v = _num(value)
+    if not math.isfinite(v) or v == 0.0:
+        return None
+    k = int(math.floor(math.log10(abs(v))))
+    text = pm(v, u, 10.0**-k)
+    return None if text is None else f"({text})e{k}"
 
 
 def table_pages(c: SessionContent, first: int) -> list:
@@ -370,8 +384,9 @@ def table_pages(c: SessionContent, first: int) -> list:
             if i == 0:
                 cell.set_text_props(fontweight="bold")
         w = Writer(fig, y=0.93 - height - 0.03)
-        w.para("Each value ± its standard uncertainty (k = 1); Re to two figures describes the conditions (no "
-               "uncertainty is stated for it). A point in a state (no flow, reference invalid, saturated, "
+        w.para("Each value ± its standard uncertainty (k = 1); u(V) and u(Re) carry u(q), the run's temperature "
+               "and a typed room pressure (ρ and μ through them). A point recorded before the reduction stated "
+               "them shows V as not stated and Re ≈ to two figures, a description of the conditions. A point in a state (no flow, reference invalid, saturated, "
                "implausible, bad calibration) shows the state, never a number.", size=7)
         if k + ROWS_PER_PAGE >= len(rows):
             w.heading("The link's counters")

@@ -767,6 +767,7 @@ def point_record(mean: ReducedMean, seconds: float) -> dict:
     return {
         "window_s": seconds, "n_scans": mean.n_scans, "used_scans": mean.used_scans, "t_ns": list(mean.t_ns),
         "q_pa": num(mean.q_pa), "u_q_pa": num(mean.u_q_pa), "v_ms": num(mean.v_ms), "re": num(mean.re),
+        "u_v_ms": num(mean.u_v_ms), "u_re": num(mean.u_re),
         "alpha_rad": num(mean.alpha_rad), "flags": mean.flag_names,
         "cp": {t: num(c) for t, c in zip(mean.tap_names, mean.cp)},
         "u_cp": {t: num(c) for t, c in zip(mean.tap_names, mean.u_cp)},

@@ -107,16 +107,11 @@ def coefficients(mean: ReducedMean, u: ReducedMean | None = None) -> dict | None
 
 
 def flow_numbers(mean: ReducedMean, density: float, u: ReducedMean | None = None) -> dict:
-    """q, V, Re, Mach and ρ with uncertainties where the reduction gives them (``u``: the mean whose
-    uncertainties are shown, default ``mean``).
-
-    u(V)/V = u(q)/(2q) and u(Re)/Re = u(V)/V to first order (V = √(2q/ρ); the fluid properties' own uncertainty
-    is not included: JCGM 100:2008 §5.1.2 with ρ and ν held fixed).
-    """
+    """q, V, Re, Mach and ρ with the reducer's uncertainties (``u``: the mean whose uncertainties are shown,
+    default ``mean``; u(V) and u(Re) are :func:`taprig.reduce.mean.flow_u`'s, None where it states none)."""
     u = mean if u is None else u
-    rel = u.u_q_pa / (2.0 * u.q_pa) if u.q_pa and math.isfinite(u.u_q_pa) else math.nan
-    return {"q_pa": pair(mean.q_pa, u.u_q_pa), "v_ms": pair(mean.v_ms, abs(rel) * u.v_ms),
-            "re": pair(mean.re, abs(rel) * u.re), "mach": num(mean.mach), "rho": num(density)}
+    return {"q_pa": pair(mean.q_pa, u.u_q_pa), "v_ms": pair(mean.v_ms, u.u_v_ms),
+            "re": pair(mean.re, u.u_re), "mach": num(mean.mach), "rho": num(density)}
 
 
 def reading(reducer, mean: ReducedMean, channel_flag_counts: dict, scan_index: tuple[int, int],
