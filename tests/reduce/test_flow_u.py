@@ -84,9 +84,11 @@ def test_monte_carlo_u_of_v_follows_the_draws_and_matches_an_outside_one():
     outside = max(hi - v_hat, v_hat - lo) / 1.96
     first_order = v_hat * mean.u_q_pa / (2 * mean.q_pa)
     print(f"u(V): reducer {mean.u_v_ms:.4f}, outside Monte Carlo {outside:.4f}, first order {first_order:.4f}")
-    # 2 × 10⁴ draws give u to about 3 % (JCGM 101:2008 §7.2); the √ skews the low side past first order
-    assert mean.u_v_ms == pytest.approx(outside, rel=0.05)
+    # the reducer's MC_DRAWS give the interval's ends to about 6 % of u (reduce/mean.py, JCGM 101:2008 §7.2): within
+    # 2.5 of those; the √ skews the low side past first order
+    assert mean.u_v_ms == pytest.approx(outside, rel=0.15)
     assert first_order < 0.93 * outside
+    assert mean.u_v_ms > 1.05 * first_order  # the reducer's came from the draws, not the first-order budget
     # Re ∝ V at fixed fluid properties: the same relative interval
     assert mean.u_re / mean.re == pytest.approx(mean.u_v_ms / mean.v_ms, rel=0.01)
 
