@@ -158,7 +158,7 @@ class Playback(Display):
         self.source.clear()
         try:
             replay = Replay(self.path, calibration=self.calibration, speed=self.speed or None,
-                            seek_s=min(seek_s, self.duration_s))
+                            seek_s=min(seek_s, self.duration_s), hold=False)  # the display averages chunks' blocks
         except (ReplayError, ValueError) as exc:
             self.error, self.playing = str(exc), False
             return

@@ -3,9 +3,11 @@
 The rig comes from the session's rig snapshot (with any section table stored beside it), the calibration from its
 calibration snapshots (or one given to re-reduce the run with), the ambient conditions from ``meta``. Chunks are
 fed one by one, in recording order, to a fresh :class:`~taprig.protocol.StreamDecoder`, exactly as the link fed
-them live, so the decoded items and the counters are the live ones. Reduction is row by row (every scan's result
-depends on that scan's counts, angle and calibration only), so reducing several chunks' blocks in one call gives
-the same numbers as reducing them one by one; the fast replay does that to save per-call overhead.
+them live, so the decoded messages and the counters are the live ones. Reduction is row by row (every scan's result
+depends on that scan's counts, angle and calibration only), so reducing several chunks' scans in one call gives
+the same numbers as reducing them one by one; the fast replay does that to save per-call overhead: it tags each
+chunk with its arrival time so the decoder holds the scans of many chunks and hands them out as one block (one
+conversion to float64 and one reduction per batch), each scan's arrival time and angle still its own chunk's.
 
 What the reducer is given for each chunk, live and in replay alike (see :class:`AngleSchedule`):
 
@@ -193,6 +195,9 @@ class Replay:
         Time source of a paced replay (tests pass a simulated one).
     batch_scans : int
         In a fast replay, scans gathered before one reduction call (one step).
+    hold : bool
+        In a fast replay, let the decoder hold the scans of many chunks and hand them out as one block per step
+        (the fastest); False: one block per chunk, as live (a display that averages the newest quarter second).
 
     Attributes ``rig``, ``ambient``, ``reducer``, ``meta``, ``start_ns`` (session start, ns since the epoch),
     ``first_t_ns`` (device time of the first scan, once seen), ``total_chunks`` and ``counters`` (so far).
@@ -200,7 +205,7 @@ class Replay:
 
     def __init__(self, session: str | Path | SessionReader, calibration: Calibration | None = None,
                  speed: float | None = None, seek_s: float = 0.0, clock: Clock | None = None,
-                 batch_scans: int = FAST_BATCH_SCANS):
+                 batch_scans: int = FAST_BATCH_SCANS, hold: bool = True):
         if speed is not None and not speed > 0:
             raise ValueError(f"replay speed must be > 0 (or None for as fast as possible); got {speed}")
         if not (seek_s >= 0 and math.isfinite(seek_s)):
@@ -220,7 +225,7 @@ class Replay:
         except Exception:
             self.close()
             raise
-        self.speed, self.seek_s, self.batch_scans = speed, float(seek_s), int(batch_scans)
+        self.speed, self.seek_s, self.batch_scans, self.hold = speed, float(seek_s), int(batch_scans), hold
         self.clock = clock or SystemClock()
         self.start_ns = session_start_ns(self.reader)
         self.total_chunks, _, first_ns, last_ns = self.reader.chunk_summary()
@@ -287,39 +292,71 @@ class Replay:
         return self._reducers[self.reducer_at(host_ns)]
 
     def __iter__(self) -> Iterator[ReplayStep]:
-        """Replay from the first chunk (each iteration starts afresh, with a new decoder)."""
-        self.decoder = StreamDecoder(description_from_meta(self.reader.meta))
+        """Replay from the first chunk (each iteration starts afresh, with a new decoder).
+
+        A fast replay feeds each chunk tagged with its arrival time, so the decoder holds the scans of many chunks
+        and hands them out as one block (:class:`~taprig.protocol.StreamDecoder`, holding): one conversion and one
+        reduction per batch instead of one per chunk, with every scan's arrival time kept.
+        """
+        self.decoder = decoder = StreamDecoder(description_from_meta(self.reader.meta))
         self.first_t_ns, self._origin = None, None
         seek_ns = (self.start_ns or 0) + round(self.seek_s * 1e9)
+        fast = self.speed is None
         items: list = []
-        pending: list[tuple[RawBlock, int]] = []
-        scans, current, done = 0, 0, 0
-        for chunk in self.reader.chunks():
-            done += 1
-            decoded = self.decoder.feed(chunk.data)
-            if self.first_t_ns is None:
-                self.first_t_ns = next((int(b.t_ns[0]) for b in decoded if isinstance(b, RawBlock)), None)
-            if chunk.host_ns < seek_ns:
-                continue  # decoded for the decoder's state and counters; not reduced
-            which = self.reducer_at(chunk.host_ns)
-            if which != current and pending:
-                yield self._step(pending[-1][1], done - 1, items, pending, current)
-                items, pending, scans = [], [], 0
-            current = which
-            items += decoded
+        pending: list[tuple[RawBlock, np.ndarray]] = []
+        scans, current, done, last_ns = 0, 0, 0, None
+
+        def take(decoded: list, host_ns: int | None) -> None:
+            """Add decoded items to the step; each block with its scans' arrival times."""
+            nonlocal scans
+            items.extend(decoded)
+            tags = iter(decoder.take_tags())
             for item in decoded:
                 if isinstance(item, RawBlock):
-                    pending.append((item, chunk.host_ns))
+                    arrival = next(tags) if host_ns is None else np.full(item.n_scans, host_ns, dtype=np.int64)
+                    pending.append((item, arrival))
                     scans += item.n_scans
-            if self.speed is not None:
-                self._wait(chunk.host_ns)
-                yield self._step(chunk.host_ns, done, items, pending, current)
-                items, pending, scans = [], [], 0
-            elif scans >= self.batch_scans:
-                yield self._step(chunk.host_ns, done, items, pending, current)
-                items, pending, scans = [], [], 0
+                    if self.first_t_ns is None:
+                        self.first_t_ns = int(item.t_ns[0])
+
+        def step(host_ns: int) -> ReplayStep:
+            nonlocal items, pending, scans
+            out = self._step(host_ns, done, items, pending, current)
+            items, pending, scans = [], [], 0
+            return out
+
+        for chunk in self.reader.chunks():
+            done += 1
+            if chunk.host_ns < seek_ns:
+                decoded = decoder.feed(chunk.data)  # decoded for the decoder's state and counters; not reduced
+                if self.first_t_ns is None:
+                    self.first_t_ns = next((int(b.t_ns[0]) for b in decoded if isinstance(b, RawBlock)), None)
+                continue
+            which = self.reducer_at(chunk.host_ns)
+            if which != current:
+                take(decoder.flush(), None)  # the held scans were reduced under the reducer before this chunk
+                if pending:
+                    done -= 1
+                    yield step(last_ns)
+                    done += 1
+            current = which
+            if fast and self.hold:
+                take(decoder.feed(chunk.data, tag=chunk.host_ns), None)
+                last_ns = chunk.host_ns
+                if scans + decoder.pending_scans >= self.batch_scans:
+                    take(decoder.flush(), None)
+                    yield step(chunk.host_ns)
+            else:
+                take(decoder.feed(chunk.data), chunk.host_ns)
+                last_ns = chunk.host_ns
+                if not fast:
+                    self._wait(chunk.host_ns)
+                    yield step(chunk.host_ns)
+                elif scans >= self.batch_scans:
+                    yield step(chunk.host_ns)
+        take(decoder.flush(), None)
         if items:
-            yield self._step(pending[-1][1] if pending else seek_ns, done, items, pending, current)
+            yield step(pending[-1][1][-1] if pending else seek_ns)
 
     def _step(self, host_ns: int, done: int, items: list, pending: list, which: int) -> ReplayStep:
         """Reduce the pending raw blocks (runs of one channel set in one call each) into a step."""
@@ -332,25 +369,25 @@ class Replay:
                 end += 1
             run = pending[start:end]
             raw = RawBlock.concat([b for b, _ in run])
-            sizes = [b.n_scans for b, _ in run]
-            arrival = np.repeat(np.array([t for _, t in run], dtype=np.int64), sizes)
-            alpha = self._alpha(reducer, run, sizes)
+            arrival = run[0][1] if len(run) == 1 else np.concatenate([t for _, t in run])
+            alpha = self._alpha(reducer, arrival)
             try:
                 reduced = reducer.reduce(raw, alpha_rad=alpha)
             except (ReduceError, KeyError, IndexError, ValueError) as exc:  # a block the rig does not fit
                 raise ReplayError(f"{self.reader.path}: cannot reduce the scans at host time "
-                                  f"{(run[0][1] - (self.start_ns or 0)) / 1e9:.3f} s: {exc}") from None
+                                  f"{(int(arrival[0]) - (self.start_ns or 0)) / 1e9:.3f} s: {exc}") from None
             blocks.append(ReplayBlock(raw, reduced, arrival))
             start = end
         return ReplayStep(host_ns, done, tuple(items), tuple(blocks))
 
-    def _alpha(self, reducer: Reducer, run: list, sizes: list[int]):
-        """The angle per scan of a run of blocks: each block's chunk time looked up in the schedule."""
-        values = [self.angles.at(t) for _, t in run]
+    def _alpha(self, reducer: Reducer, arrival: np.ndarray):
+        """The angle per scan: each scan's chunk arrival time looked up in the schedule."""
+        times, inverse = np.unique(arrival, return_inverse=True)
+        values = [self.angles.at(int(t)) for t in times]
         if all(v is None for v in values):
             return None
         fixed = reducer.options.alpha_rad
-        return np.repeat(np.array([fixed if v is None else v for v in values], dtype=float), sizes)
+        return np.array([fixed if v is None else v for v in values], dtype=float)[inverse.reshape(-1)]
 
     def _wait(self, host_ns: int) -> None:
         """Pace a replay: wait until ``host_ns`` is due at ``speed`` × real time from the first replayed chunk."""
