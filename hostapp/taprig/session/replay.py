@@ -356,7 +356,7 @@ class Replay:
                     yield step(chunk.host_ns)
         take(decoder.flush(), None)
         if items:
-            yield step(pending[-1][1][-1] if pending else seek_ns)
+            yield step(int(pending[-1][1][-1]) if pending else seek_ns)
 
     def _step(self, host_ns: int, done: int, items: list, pending: list, which: int) -> ReplayStep:
         """Reduce the pending raw blocks (runs of one channel set in one call each) into a step."""
