@@ -20,7 +20,7 @@ import pytest
 from taprig.analysis import analyse_points, point_table
 from taprig.cli import main
 from taprig.report import point_state
-from taprig.report.style import pm
+from taprig.report.style import pm, pm_exponent
 from taprig.session.api import open_session
 from taprig.session.store import SessionReader
 from tests.report.sessions import RIGS, fan_steps_session, sweep_session
@@ -406,8 +406,8 @@ def test_a_fan_sweep_at_one_angle_is_shown_against_the_reynolds_number(tmp_path)
     page = " ".join(pdf_text(pdf, 2).split())
     assert "Coefficients against the Reynolds number" in page and "no lift curve (one angle)" in page
     table = point_table(records)  # the analysis's choice of coefficients ("best")
-    for re_d, cl, u in zip(table.re, table.cl, table.u_cl):
-        assert f"Re {re_d:.2g}, Cl {pm(cl, u)}" in page
+    for re_d, u_re, cl, u in zip(table.re, table.u_re, table.cl, table.u_cl):
+        assert np.isfinite(u_re) and f"Re {pm_exponent(re_d, u_re)}, Cl {pm(cl, u)}" in page  # Re with its u too
 
 
 def test_the_table_states_v_and_re_with_the_records_uncertainty_or_says_it_is_not_stated():

@@ -51,7 +51,9 @@ class PointTable:
     q_pa: np.ndarray
     u_q_pa: np.ndarray
     v_ms: np.ndarray
+    u_v_ms: np.ndarray
     re: np.ndarray
+    u_re: np.ndarray
     cl_balance: np.ndarray
     u_cl_balance: np.ndarray
     mass_flow_kg_s: np.ndarray
@@ -105,7 +107,7 @@ def point_table(records: Sequence[Mapping], coefficients: str = "best", upper_ta
         cols["alpha_set_rad"].append(alpha_set)
         for name in ("cl", "u_cl", "cd_p", "u_cd_p", "cm_qc", "u_cm_qc"):
             cols[name].append(_num(c.get(name)) if c is not None else math.nan)
-        for name in ("q_pa", "u_q_pa", "v_ms", "re", "cl_balance", "u_cl_balance", "mass_flow_kg_s", "fan"):
+        for name in ("q_pa", "u_q_pa", "v_ms", "u_v_ms", "re", "u_re", "cl_balance", "u_cl_balance", "mass_flow_kg_s", "fan"):
             cols[name].append(_num(rec.get(name)))
         rms = rec.get("cp_rms")
         suction = tuple(upper_taps) if not alpha_set < 0 else tuple(lower_taps)

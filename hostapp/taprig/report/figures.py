@@ -13,17 +13,10 @@ from taprig.analysis import ISO_MACHINED
 from taprig.reduce.curves import THIN_AIRFOIL_SLOPE
 from taprig.report.content import PointView, SessionContent
 from taprig.report.style import (BALANCE, DOWN, GREY, INK, LOWER, ONE_WAY, THEORY, UP, UPPER, VERMILION, cycle,
-                                 marker_only, pm)
+                                 _num, marker_only, pm, reynolds)
 from taprig.rig import RigKind
 
 DEG = 180.0 / math.pi
-
-
-def _num(value) -> float:
-    try:
-        return float(value)
-    except (TypeError, ValueError):
-        return math.nan
 
 
 def _errorbar(ax, x, y, u, style: dict, label: str | None = None, **kw):
@@ -229,7 +222,7 @@ def reynolds_results(content: SessionContent) -> list[str]:
            "the Reynolds number; no lift curve (one angle)."]
     t = a.table
     for i in np.argsort(t.re, kind="stable"):
-        parts = [f"Re {t.re[i]:.2g}"]
+        parts = [f"Re {reynolds(t.re[i], t.u_re[i])}"]
         for name, label in (("cl", "Cl"), ("cd_p", "Cd_p"), ("cm_qc", "Cm¼")):
             v = pm(getattr(t, name)[i], getattr(t, f"u_{name}")[i])
             if v is not None:

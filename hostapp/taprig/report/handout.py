@@ -23,7 +23,7 @@ import numpy as np
 from taprig.physics.units import Unit, from_si
 from taprig.report import figures as F
 from taprig.report.content import HandoutError, SessionContent, load_session
-from taprig.report.style import GREY, INK, VERMILION, Writer, new_figure, new_page, pm
+from taprig.report.style import GREY, INK, VERMILION, Writer, _num, new_figure, new_page, pm, reynolds
 from taprig.rig import RigKind
 
 ALIGN_CHOICES = ("alpha", "q")
@@ -46,13 +46,6 @@ class Figure:
 
     name: str
     draw: Callable
-
-
-def _num(value) -> float:
-    try:
-        return float(value)
-    except (TypeError, ValueError):
-        return math.nan
 
 
 def load_sessions(paths: Sequence[str | Path], coefficients: str = "best") -> list[SessionContent]:
@@ -294,7 +287,7 @@ def theory_page(c: SessionContent, n: int):
         cd = F.best_coefficients(p.record)
         v = pm(cd.get("cd_p"), cd.get("u_cd_p"))
         if v is not None:
-            lines.append(f"{p.label}: Cd_p {v} (pressure drag only), Re {_num(p.record.get('re')):.2g}.")
+            lines.append(f"{p.label}: Cd_p {v} (pressure drag only), Re {reynolds(p.record.get('re'), p.record.get('u_re'))}.")
     _results(fig, lines, 0.44)
     return fig
 
@@ -340,24 +333,13 @@ def table_rows(c: SessionContent) -> list[list[str]]:
         rows.append(head + [
             pm(r.get("q_pa"), r.get("u_q_pa")) or "–",
             pm(v, r.get("u_v_ms")) or ("not stated" if math.isfinite(v) else "–"),
-            pm_exponent(re, r.get("u_re")) or (f"≈ {re:.1e} (u not stated)" if math.isfinite(re) else "–"),
+            reynolds(re, r.get("u_re")),
             coeff("cl") if c.rig.kind is RigKind.AIRFOIL else "–",
             coeff("cd_p"), coeff("cm_qc") if c.rig.kind is RigKind.AIRFOIL else "–",
             pm(r.get("cl_balance"), r.get("u_cl_balance")) or "–",
             pm(r.get("mass_flow_kg_s"), r.get("u_mass_flow_kg_s"), 1e3) or "–",
         ])
     return rows
-
-
-def pm_exponent(value, u) -> str | None:
-    """``(m ± u_m)e k``: :func:`pm` of ``value`` and ``u`` over 10^k, k the exponent of ``value`` (a Reynolds
-    number's six digits would hide the two of its uncertainty), or None as :func:`pm`."""
-    v = _num(value)
-    if not math.isfinite(v) or v == 0.0:
-        return None
-    k = int(math.floor(math.log10(abs(v))))
-    text = pm(v, u, 10.0**-k)
-    return None if text is None else f"({text})e{k}"
 
 
 def table_pages(c: SessionContent, first: int) -> list:

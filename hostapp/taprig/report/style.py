@@ -65,6 +65,35 @@ def pm(value, u, scale: float = 1.0) -> str | None:
     return f"{v:.{d}f} ± {e:.{d}f}"
 
 
+def _num(value) -> float:
+    """``value`` as a float; NaN for a missing or non-numeric record value."""
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def pm_exponent(value, u) -> str | None:
+    """``(m ± u_m)e k``: :func:`pm` of ``value`` and ``u`` over 10^k, k the exponent of ``value`` (a Reynolds
+    number's six digits would hide the two of its uncertainty), or None as :func:`pm`."""
+    v = _num(value)
+    if not math.isfinite(v) or v == 0.0:
+        return None
+    k = int(math.floor(math.log10(abs(v))))
+    text = pm(v, u, 10.0**-k)
+    return None if text is None else f"({text})e{k}"
+
+
+def reynolds(value, u) -> str:
+    """A Reynolds number for the page: :func:`pm_exponent` with its uncertainty, ``≈ value (u not stated)`` for a
+    record that states none (a description of the conditions, to two figures), or ``–`` when there is no value."""
+    text = pm_exponent(value, u)
+    if text is not None:
+        return text
+    v = _num(value)
+    return f"≈ {v:.1e} (u not stated)" if math.isfinite(v) else "–"
+
+
 def wrap(text: str, width: int) -> list[str]:
     """Lines of at most ``width`` characters (an empty text stays one empty line)."""
     return textwrap.wrap(text, width) or [""]
