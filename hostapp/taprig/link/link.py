@@ -476,17 +476,18 @@ class Link:
         withhold the message (a setpoint decided before the host froze must not go out after it).
         """
         with self._tx_lock:
+            seq = self._tx_seq
+            frame = encode_message(msg, seq)  # encoded first: nothing but the write follows the guard's look
             now = time.monotonic()
             if guard is not None:
                 quiet = self._longest_quiet_s
                 if self._last_write_mono is not None:
                     quiet = max(quiet, now - self._last_write_mono)
                 guard(quiet)
+            port.write(frame)
             if self._last_write_mono is not None:
                 self._longest_quiet_s = max(self._longest_quiet_s, now - self._last_write_mono)
             self._last_write_mono = now
-            seq = self._tx_seq
-            port.write(encode_message(msg, seq))
             self._tx_seq = (seq + 1) & 0xFFFFFFFF
             return seq
 
