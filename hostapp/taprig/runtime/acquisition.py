@@ -45,6 +45,9 @@ class AcquisitionError(Exception):
 
 #: Longest wait for the board's reply to each safe value sent at shutdown [s].
 SHUTDOWN_REPLY_S = 2.0
+#: How long the ending waits for a link lost a moment before it to be made again, so the safe values reach the
+#: board [s].
+RELINK_WAIT_S = 2.0
 
 
 @dataclass(frozen=True)
@@ -265,7 +268,7 @@ class Acquisition:
                 return self.shutdown_report
             self._shutting_down.set()
             self._stream = None  # no stream restart after a board reset from here on
-            link_up = self.link.connected
+            link_up = self.link.connected or self._await_link(RELINK_WAIT_S)
             outcomes = []
             if self._thread.ident is not None:  # the run was opened (a run that never opened moved nothing)
                 outcomes = [self._send_safe(a, link_up, reply_timeout_s) for a in self._safe_order()]
@@ -300,6 +303,19 @@ class Acquisition:
     def _safe_order(self):
         """The actuators in the order they are made safe: the fan (the flow, the danger) before the rest."""
         return sorted(self.rig.actuators, key=lambda a: a.kind is not ActuatorKind.FAN)
+
+    def _await_link(self, timeout_s: float) -> bool:
+        """Whether a link lost a moment ago (within ``RELINK_WAIT_S``: a host that froze and woke, a quick replug)
+        is made again within ``timeout_s``, so that the safe values still reach the board; a link lost for longer,
+        or one that does not reconnect, is not waited for."""
+        lost_ns = self.link.lost_since_ns
+        if not (self.link.reconnect and self.link.running) or lost_ns is None \
+                or time.time_ns() - lost_ns > RELINK_WAIT_S * 1e9:
+            return False
+        deadline = time.monotonic() + timeout_s
+        while not self.link.connected and time.monotonic() < deadline:
+            time.sleep(0.02)
+        return self.link.connected
 
     def _send_safe(self, actuator, link_up: bool, timeout: float) -> ActuatorOutcome:
         unit = "deg" if actuator.kind is ActuatorKind.ANGLE else actuator.unit
