@@ -36,6 +36,7 @@ def summary_lines(records, rig, plan) -> tuple[bool, list[str], list[str]]:
 
 def _lift_lines(records, rig, prefix: str, lines: list, problems: list) -> bool:
     from taprig.analysis import analyse_points
+    from taprig.reduce.curves import THIN_AIRFOIL_SLOPE
 
     a = analyse_points(records, rig)
     fit = a.fit
@@ -46,7 +47,7 @@ def _lift_lines(records, rig, prefix: str, lines: list, problems: list) -> bool:
     lines.append(f"{prefix}lift slope {fit.slope * PER_DEG:.4f} ± {fit.u_slope * PER_DEG:.4f} per degree "
                  f"(scatter {_u(fit.u_slope_scatter * PER_DEG)}, shared systematic "
                  f"{_u(fit.u_slope_systematic * PER_DEG)}) over {math.degrees(fit.alpha_range[0]):.1f}…"
-                 f"{math.degrees(fit.alpha_range[1]):.1f}° (thin-airfoil theory: 0.1097), zero lift at "
+                 f"{math.degrees(fit.alpha_range[1]):.1f}° (thin-airfoil theory: {THIN_AIRFOIL_SLOPE * PER_DEG:.4f}), zero lift at "
                  f"{math.degrees(fit.alpha_zero):.2f}° ± "
                  f"{math.degrees(math.hypot(_z(fit.u_alpha_zero_scatter), _z(fit.u_alpha_zero_systematic))):.2f}°"
                  + (" (angles corrected for the walls)" if a.coefficients == "best" and _corrected(a) else ""))
@@ -56,15 +57,16 @@ def _lift_lines(records, rig, prefix: str, lines: list, problems: list) -> bool:
                      f"{math.degrees(stall.resolution):.1f}° (half the spacing of the points there), Cl max "
                      f"{stall.cl_max:.3f} ± {stall.u_cl_max:.3f}" + (", abrupt" if stall.abrupt else ", gradual"))
     elif stall is not None:
-        lines.append(f"{prefix}no stall within the sweep (Cl max {stall.cl_max:.3f} at "
+        lines.append(f"{prefix}no stall within the sweep (Cl max {stall.cl_max:.3f} ± {stall.u_cl_max:.3f} at "
                      f"{math.degrees(stall.alpha_cl_max):.1f}°)")
     h = a.hysteresis
     if h is not None:
         if h.present:
             lo, hi = (math.degrees(x) for x in h.alpha_range)
+            k = int(np.nanargmax(np.abs(h.delta)))
             lines.append(f"{prefix}hysteresis: up and down legs differ beyond twice their uncertainty over "
-                         f"{lo:.1f}…{hi:.1f}°, by up to {h.largest:.3f} in Cl at {math.degrees(h.alpha_largest):.1f}°; "
-                         f"loop area {h.area:.4f} rad")
+                         f"{lo:.1f}…{hi:.1f}°, by up to {h.delta[k]:.3f} ± {h.u_delta[k]:.3f} in Cl at "
+                         f"{math.degrees(h.alpha[k]):.1f}°")
         else:
             lines.append(f"{prefix}no hysteresis: the up and down legs agree within twice their uncertainty")
     u = a.unsteadiness

@@ -22,6 +22,7 @@ import numpy as np
 from taprig.analysis import SweepAnalysis, analyse_points
 from taprig.reduce import ReduceError
 from taprig.reduce.curves import Curve, reference_curves, shape_fit_curve
+from taprig.report.style import as_number
 from taprig.rig import Calibration, Rig, RigError, RigKind
 from taprig.runtime.viewframe import point_record_summary
 from taprig.session.api import Session, session_summary
@@ -130,20 +131,13 @@ def _fit_curve(reducer, record: dict, kind: RigKind) -> Curve | None:
     if kind is not RigKind.AIRFOIL or record.get("shape") is None:
         return None
     cp_map = record.get("cp") or {}
-    cp = np.array([_num(cp_map.get(name)) for name in reducer.tap_names])
+    cp = np.array([as_number(cp_map.get(name)) for name in reducer.tap_names])
     excluded = tuple(n for n, c in zip(reducer.tap_names, cp) if not math.isfinite(c))
     mean = SimpleNamespace(cp=cp, shape=record.get("shape"), excluded_taps=excluded)
     try:
         return shape_fit_curve(reducer, mean)
     except (ValueError, ReduceError):
         return None
-
-
-def _num(value) -> float:
-    try:
-        return float(value)
-    except (TypeError, ValueError):
-        return math.nan
 
 
 def load_session(path: str | Path, coefficients: str = "best") -> SessionContent:

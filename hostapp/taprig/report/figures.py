@@ -13,7 +13,7 @@ from taprig.analysis import ISO_MACHINED
 from taprig.reduce.curves import THIN_AIRFOIL_SLOPE
 from taprig.report.content import PointView, SessionContent
 from taprig.report.style import (BALANCE, DOWN, GREY, INK, LOWER, ONE_WAY, THEORY, UP, UPPER, VERMILION, cycle,
-                                 _num, marker_only, pm, reynolds)
+                                 as_number, marker_only, pm, reynolds)
 from taprig.rig import RigKind
 
 DEG = 180.0 / math.pi
@@ -48,7 +48,7 @@ def best_coefficients(record: dict) -> dict:
 
 def point_title(p: PointView) -> str:
     """``α +4.0° up`` from the record (the commanded angle), else the point's label."""
-    alpha = _num(p.record.get("alpha_rad"))
+    alpha = as_number(p.record.get("alpha_rad"))
     fan = p.record.get("fan")
     parts = []
     if math.isfinite(alpha):
@@ -65,7 +65,7 @@ def point_title(p: PointView) -> str:
 def draw_cp_point(ax, content: SessionContent, p: PointView, legend: bool = True) -> None:
     """Cp at the taps of one point with error bars, negative up, the fit curve or the theory beside it."""
     kind = content.rig.kind
-    ax.set_title(f"{p.label}" if not math.isfinite(_num(p.record.get("alpha_rad"))) or kind is not RigKind.AIRFOIL
+    ax.set_title(f"{p.label}" if not math.isfinite(as_number(p.record.get("alpha_rad"))) or kind is not RigKind.AIRFOIL
                  else point_title(p), fontsize=9)
     if not p.shown:
         ax.text(0.5, 0.5, f"{p.state.upper()}\nno numbers shown for this point", ha="center", va="center",
@@ -75,8 +75,8 @@ def draw_cp_point(ax, content: SessionContent, p: PointView, legend: bool = True
     layout = content.rig.tap_layout()
     cp_map, u_map = p.record.get("cp") or {}, p.record.get("u_cp") or {}
     names = list(layout.names)
-    cp = np.array([_num(cp_map.get(n)) for n in names])
-    u = np.array([_num(u_map.get(n)) for n in names])
+    cp = np.array([as_number(cp_map.get(n)) for n in names])
+    u = np.array([as_number(u_map.get(n)) for n in names])
     missing = [n for n, c in zip(names, cp) if not math.isfinite(c)]
     if kind in (RigKind.AIRFOIL, RigKind.BUMP) and layout.x_c is not None:
         x = np.asarray(layout.x_c, dtype=float)
@@ -346,8 +346,8 @@ def draw_venturi_cp(ax, content: SessionContent) -> None:
     ax.set_title("Pressure along the venturi: measured and ideal", fontsize=10)
     for i, p in enumerate(content.shown):
         cp_map, u_map = p.record.get("cp") or {}, p.record.get("u_cp") or {}
-        cp = [_num(cp_map.get(n)) for n in layout.names]
-        u = [_num(u_map.get(n)) for n in layout.names]
+        cp = [as_number(cp_map.get(n)) for n in layout.names]
+        u = [as_number(u_map.get(n)) for n in layout.names]
         _errorbar(ax, x, cp, u, cycle(i), label=p.label)
     for curve in content.reference:
         ax.plot(np.asarray(curve.x) * 1e3, curve.y, label=curve.label, **{**THEORY, "color": INK, "lw": 1.6})
@@ -363,9 +363,9 @@ def draw_venturi_flow(ax, content: SessionContent) -> None:
     ax.set_title("Flow rate with its uncertainty", fontsize=10)
     q, m, u = [], [], []
     for p in content.shown:
-        q.append(_num(p.record.get("q_pa")))
-        m.append(_num(p.record.get("mass_flow_kg_s")) * 1e3)
-        u.append(_num(p.record.get("u_mass_flow_kg_s")) * 1e3)
+        q.append(as_number(p.record.get("q_pa")))
+        m.append(as_number(p.record.get("mass_flow_kg_s")) * 1e3)
+        u.append(as_number(p.record.get("u_mass_flow_kg_s")) * 1e3)
     q, m, u = (np.array(v) for v in (q, m, u))
     ok = np.isfinite(u)
     if not ok.any():
@@ -467,8 +467,8 @@ def draw_calibration(ax, content: SessionContent) -> None:
         ax.set_xticks([]), ax.set_yticks([])
         return
     names = list(cal.channels)
-    zero = np.array([_num(cal.channels[n].zero_std_error) for n in names])
-    lin = np.array([_num(cal.channels[n].linearity_pct_fs) for n in names])
+    zero = np.array([as_number(cal.channels[n].zero_std_error) for n in names])
+    lin = np.array([as_number(cal.channels[n].linearity_pct_fs) for n in names])
     pos = np.arange(len(names))
     ax.bar(pos - 0.2, np.nan_to_num(zero), width=0.4, color="white", edgecolor=INK, hatch="///",
            label="zero std. error [counts]")
@@ -494,19 +494,19 @@ def comparison_value(content: SessionContent) -> tuple[str, np.ndarray, np.ndarr
     shown = content.shown
     if content.rig.kind is RigKind.AIRFOIL:
         vals = [best_coefficients(p.record) for p in shown]
-        return "Cl", np.array([_num(c.get("cl")) for c in vals]), np.array([_num(c.get("u_cl")) for c in vals]), None
+        return "Cl", np.array([as_number(c.get("cl")) for c in vals]), np.array([as_number(c.get("u_cl")) for c in vals]), None
     if content.rig.kind is RigKind.VENTURI:
-        return ("mass flow [g/s]", np.array([_num(p.record.get("mass_flow_kg_s")) * 1e3 for p in shown]),
-                np.array([_num(p.record.get("u_mass_flow_kg_s")) * 1e3 for p in shown]), None)
+        return ("mass flow [g/s]", np.array([as_number(p.record.get("mass_flow_kg_s")) * 1e3 for p in shown]),
+                np.array([as_number(p.record.get("u_mass_flow_kg_s")) * 1e3 for p in shown]), None)
     vals = [best_coefficients(p.record) for p in shown]
-    return "Cd_p", np.array([_num(c.get("cd_p")) for c in vals]), np.array([_num(c.get("u_cd_p")) for c in vals]), None
+    return "Cd_p", np.array([as_number(c.get("cd_p")) for c in vals]), np.array([as_number(c.get("u_cd_p")) for c in vals]), None
 
 
 def comparison_x(content: SessionContent, align: str) -> np.ndarray:
     """Each shown point's place on the comparison's axis: the commanded α [°] or q [Pa]."""
     if align == "alpha":
-        return np.array([_num(p.record.get("alpha_rad")) * DEG for p in content.shown])
-    return np.array([_num(p.record.get("q_pa")) for p in content.shown])
+        return np.array([as_number(p.record.get("alpha_rad")) * DEG for p in content.shown])
+    return np.array([as_number(p.record.get("q_pa")) for p in content.shown])
 
 
 def draw_comparison(ax, contents: list[SessionContent], align: str) -> None:
@@ -516,7 +516,7 @@ def draw_comparison(ax, contents: list[SessionContent], align: str) -> None:
         name, y, u, _ = comparison_value(c)
         names.add(name)
         x = comparison_x(c, align)
-        re = np.array([_num(p.record.get("re")) for p in c.shown])
+        re = np.array([as_number(p.record.get("re")) for p in c.shown])
         re_text = f", Re ≈ {np.nanmedian(re):.3g}" if np.isfinite(re).any() else ""
         _errorbar(ax, x, y, np.where(np.isfinite(u), u, np.nan), cycle(i), label=f"{c.path.name}{re_text}")
     ax.set_xlabel("α commanded [°]" if align == "alpha" else "q [Pa]")

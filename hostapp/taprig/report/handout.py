@@ -23,7 +23,7 @@ import numpy as np
 from taprig.physics.units import Unit, from_si
 from taprig.report import figures as F
 from taprig.report.content import HandoutError, SessionContent, load_session
-from taprig.report.style import GREY, INK, VERMILION, Writer, _num, new_figure, new_page, pm, reynolds
+from taprig.report.style import GREY, INK, VERMILION, Writer, as_number, new_figure, new_page, pm, reynolds
 from taprig.rig import RigKind
 
 ALIGN_CHOICES = ("alpha", "q")
@@ -82,7 +82,7 @@ def rests_on(c: SessionContent) -> tuple[list[str], list[str]]:
     """What the numbers rest on and what they omit, in sentences."""
     rig, a = c.rig, c.analysis
     rest = [f"{s[0].upper()}{s[1:]}." if not s.endswith(".") else s for s in c.assumptions]
-    windows = sorted({_num(p.record.get("window_s")) for p in c.points if math.isfinite(_num(p.record.get("window_s")))})
+    windows = sorted({as_number(p.record.get("window_s")) for p in c.points if math.isfinite(as_number(p.record.get("window_s")))})
     methods_u = sorted({str(p.record.get("uncertainty_method") or "first order (GUM, JCGM 100:2008 §5)")
                         for p in c.shown})
     if windows:
@@ -264,8 +264,8 @@ def theory_page(c: SessionContent, n: int):
     layout = c.rig.tap_layout()
     for i, p in enumerate(c.shown):
         cp_map, u_map = p.record.get("cp") or {}, p.record.get("u_cp") or {}
-        cp = [_num(cp_map.get(t)) for t in layout.names]
-        u = [_num(u_map.get(t)) for t in layout.names]
+        cp = [as_number(cp_map.get(t)) for t in layout.names]
+        u = [as_number(u_map.get(t)) for t in layout.names]
         x = np.degrees(layout.theta) if layout.theta is not None else (layout.x_c if layout.x_c is not None
                                                                            else np.arange(len(cp)))
         v = pm(p.record.get("q_pa"), p.record.get("u_q_pa"))
@@ -318,7 +318,7 @@ def table_rows(c: SessionContent) -> list[list[str]]:
     rows = []
     for p in c.points:
         r = p.record
-        alpha = _num(r.get("alpha_rad"))
+        alpha = as_number(r.get("alpha_rad"))
         head = [p.label, p.state or ("flow" + (", saturated taps left out" if p.saturated_taps else "")),
                 f"{math.degrees(alpha):.1f}" if math.isfinite(alpha) else "–"]
         if not p.shown:
@@ -329,7 +329,7 @@ def table_rows(c: SessionContent) -> list[list[str]]:
         def coeff(name):
             return pm(cf.get(name), cf.get(f"u_{name}")) or "–"
 
-        v, re = _num(r.get("v_ms")), _num(r.get("re"))
+        v, re = as_number(r.get("v_ms")), as_number(r.get("re"))
         rows.append(head + [
             pm(r.get("q_pa"), r.get("u_q_pa")) or "–",
             pm(v, r.get("u_v_ms")) or ("not stated" if math.isfinite(v) else "–"),

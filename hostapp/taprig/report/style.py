@@ -65,7 +65,7 @@ def pm(value, u, scale: float = 1.0) -> str | None:
     return f"{v:.{d}f} ± {e:.{d}f}"
 
 
-def _num(value) -> float:
+def as_number(value) -> float:
     """``value`` as a float; NaN for a missing or non-numeric record value."""
     try:
         return float(value)
@@ -76,7 +76,7 @@ def _num(value) -> float:
 def pm_exponent(value, u) -> str | None:
     """``(m ± u_m)e k``: :func:`pm` of ``value`` and ``u`` over 10^k, k the exponent of ``value`` (a Reynolds
     number's six digits would hide the two of its uncertainty), or None as :func:`pm`."""
-    v = _num(value)
+    v = as_number(value)
     if not math.isfinite(v) or v == 0.0:
         return None
     k = int(math.floor(math.log10(abs(v))))
@@ -90,7 +90,7 @@ def reynolds(value, u) -> str:
     text = pm_exponent(value, u)
     if text is not None:
         return text
-    v = _num(value)
+    v = as_number(value)
     return f"≈ {v:.1e} (u not stated)" if math.isfinite(v) else "–"
 
 
