@@ -182,7 +182,7 @@ def test_a_frozen_host_stops_the_sweep_with_the_true_cause(tmp_path, bench):
         os.kill(proc.pid, signal.SIGCONT) if proc.poll() is None else None
     err, printed = stderr.text(), stdout.text()
     assert code == 1, err
-    assert "watchdog" in err and "check the fan" not in err and "lift slope" not in printed
+    assert "watchdog" in err and "check the fan" not in err and "Lift slope" not in printed
     assert_plain(err)
     received = bench.received()
     trip = next(i for i, c in enumerate(received) if c.get("event") == "watchdog")
@@ -209,7 +209,7 @@ def test_a_reset_or_a_pulled_cable_stops_the_sweep(tmp_path, bench, action, even
     code = proc.wait(60)
     err, printed = stderr.text(), stdout.text()
     assert code == 1, err
-    assert words in err and "lift slope" not in printed
+    assert words in err and "Lift slope" not in printed
     assert_plain(err)
     received = bench.received()
     session = assert_closed_cleanly(out)

@@ -19,9 +19,9 @@ def test_sweep_prints_points_and_the_lift_curve(tmp_path, capsys):
     captured = capsys.readouterr()
     out = captured.out
     assert code == 0, captured.err
-    assert out.count("\n  ") >= 4 and "lift slope" in out and "no stall within the sweep" in out
+    assert out.count("\n  ") >= 4 and "Lift slope" in out and "no stall within the sweep" in out
     # NACA 2412: zero-lift angle about −2° (thin-airfoil theory gives −2.08°; common practice for this section)
-    zero_lift = float(out.split("zero lift at ")[1].split("°")[0])
+    zero_lift = float(out.split("Zero-lift angle ")[1].split(" ± ")[0])
     assert -3.5 < zero_lift < -1.0
 
 
@@ -81,7 +81,7 @@ def test_a_sweep_without_flow_stops_and_says_why(tmp_path, capsys):
                  "-o", str(tmp_path / "s.taprig")])
     captured = capsys.readouterr()
     assert code == 1 and "watchdog tripped" in captured.err and "check the fan" not in captured.err
-    assert "lift slope" not in captured.out
+    assert "Lift slope" not in captured.out
 
 
 def test_an_unforeseen_error_still_ends_safe_and_closed(tmp_path, capsys, monkeypatch):

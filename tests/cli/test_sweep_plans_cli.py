@@ -90,7 +90,7 @@ def test_up_and_down_past_the_stall_finds_the_models_stall_and_slope(tmp_path, c
     assert all(r["setpoints"]["fan"] == 0.8 and r["fan"] == 0.8 and r["cp_rms"] for r in records)
     unsteady = analysis.unsteadiness.unsteady
     assert unsteady[[a == max(up) for _, a in legs]].all() and not unsteady[list(analysis.fit.used)].any()
-    assert "stall at" in captured.out and "hysteresis" in captured.out
+    assert "stall at" in captured.out and "Hysteresis" in captured.out
     # then back to safe values: the sweep itself sends them, before the run's shutdown does
     last_point_ns = max(e.host_ns for e in SessionReader(out).points())
     with SessionReader(out) as r:
@@ -111,7 +111,7 @@ def test_venturi_fan_sweep_recovers_the_simulated_discharge_coefficient(tmp_path
     assert abs(dc.mean_c - 0.97) <= 2 * dc.u_mean_c and dc.u_mean_c < 0.02
     assert np.all(np.diff(dc.re_d) > 0)  # Re_D rises with the fan
     # ISO 5167-4's stated value and range beside it (ISO 5167-4:2003 §5.5, from memory)
-    assert "discharge coefficient C = " in captured.out and "ISO 5167-4 (machined convergent): C = 0.995" in captured.out
+    assert "Discharge coefficient C = " in captured.out and "ISO 5167-4 (machined convergent): C = 0.995" in captured.out
     assert "outside 2e+05…1e+06" in captured.out
 
 
@@ -126,7 +126,7 @@ def test_nested_sweep_gives_a_lift_curve_at_each_fan_setting(tmp_path, capsys):
         (0.5, 0, 0), (0.5, 2, 0), (0.5, 4, 0), (0.8, 0, 1), (0.8, 2, 1), (0.8, 4, 1)]
     re = [r["re"] for r in records]
     assert max(re[:3]) < min(re[3:])  # the higher fan setting, the higher Reynolds number
-    assert "fan 0.5: lift slope" in captured.out and "fan 0.8: lift slope" in captured.out
+    assert "fan 0.5: Lift slope" in captured.out and "fan 0.8: Lift slope" in captured.out
 
 
 def test_reynolds_sweep_of_an_airfoil_holds_the_angle(tmp_path, capsys):

@@ -20,7 +20,7 @@ import pytest
 from taprig.analysis import analyse_points, point_table
 from taprig.cli import main
 from taprig.report import point_state
-from taprig.report.style import pm, pm_exponent
+from taprig.analysis.wording import pm, pm_exponent
 from taprig.session.api import open_session
 from taprig.session.store import SessionReader
 from tests.report.sessions import RIGS, fan_steps_session, sweep_session
@@ -165,7 +165,7 @@ def test_the_cover_and_the_table_print_the_sessions_own_numbers(sessions, tmp_pa
         analysis = analyse_points(records, rig_from_session(reader))
     lift = " ".join(pdf_text(pdf, 2).split())
     fit, stall = analysis.fit, analysis.stall
-    assert pm(fit.slope_per_deg, fit.u_slope_scatter * math.pi / 180) in lift
+    assert f"Lift slope {pm(fit.slope_per_deg, fit.u_slope * math.pi / 180)} per degree" in lift  # u: both parts
     assert f"Cl max {pm(stall.cl_max, stall.u_cl_max)} at α = {math.degrees(stall.alpha_cl_max):.1f}°" in lift
     # the simulated NACA 2412 stalls within the sweep; the lift slope is near thin-airfoil 2π (within 15 %: a
     # 9-tap model with walls; Anderson, Fundamentals of Aerodynamics, §4.7)
@@ -186,6 +186,28 @@ def test_a_venturi_with_its_own_flow_reference_recovers_the_simulated_discharge_
     pdf2 = tmp_path / "v2.pdf"
     assert handout(sessions["venturi"], "-o", pdf2)[0] == 0
     assert "C not measured" in " ".join(pdf_text(pdf2, 2).split())
+
+
+def test_the_cylinder_page_gives_each_points_cd_p_and_re_with_their_uncertainties(sessions, tmp_path):
+    pdf = tmp_path / "cyl.pdf"
+    assert handout(sessions["cylinder"], "-o", pdf)[0] == 0
+    page = " ".join(pdf_text(pdf, 2).split())
+    with SessionReader(sessions["cylinder"]) as r:
+        entries = [(p.kind, p.data) for p in r.points()]
+    table = point_table([data for _, data in entries])  # the analysis's choice of coefficients ("best")
+    shown_points = 0
+    for (label, record), cd, u_cd in zip(entries, table.cd_p, table.u_cd_p):
+        if point_state(record, False):
+            assert f"{label}: Cd_p" not in page
+            continue
+        shown_points += 1
+        # Re as (m ± u_m)ek from the record's own u_re (the reduction's), beside Cd_p ± u
+        assert record.get("u_re") is not None and math.isfinite(record["u_re"])
+        assert f"{label}: Cd_p {pm(cd, u_cd)} (pressure drag only), Re {pm_exponent(record['re'], record['u_re'])}." \
+            in page, page[-1200:]
+    assert shown_points >= 2
+    assert not re.search(r"Re \d(\.\d+)?e[+-]?\d", page)  # never a bare "Re x.xe+04"
+    assert not re.search(r"\b(nan|None)\b", page)
 
 
 def _row(table: str, label: str) -> str:
@@ -254,9 +276,16 @@ def test_png_writes_each_figure_alone(sessions, tmp_path):
         assert ink(f) > 0.005, f"{f.name} is blank"
 
 
-def test_two_sessions_are_compared_aligned_by_alpha_or_q(sessions, tmp_path):
+@pytest.fixture(scope="module")
+def faster(tmp_path_factory) -> Path:
+    """The airfoil session's model again at a higher fan setting, every 4° (a second Reynolds number)."""
+    return sweep_session(tmp_path_factory.mktemp("faster") / "faster.taprig", "cambered-balance.toml", -4, 12, 4,
+                         seed=4, fan=1.0)
+
+
+def test_two_sessions_are_compared_aligned_by_alpha_or_q(sessions, faster, tmp_path):
     # the same model at two fan settings: two Reynolds numbers on one figure
-    other = sweep_session(tmp_path / "faster.taprig", "cambered-balance.toml", -4, 12, 4, seed=4, fan=1.0)
+    other = faster
     pdf = tmp_path / "both.pdf"
     code, out, err = handout(sessions["airfoil"], other, "-o", pdf)
     assert code == 0, err
@@ -274,10 +303,65 @@ def test_two_sessions_are_compared_aligned_by_alpha_or_q(sessions, tmp_path):
     assert_no_blank_page(pdf, tmp_path)
     by_q = tmp_path / "q.pdf"
     assert handout(sessions["airfoil"], other, "-o", by_q, "--align", "q")[0] == 0
-    assert "aligned by dynamic pressure" in pdf_text(by_q, 2)
+    page2_q = " ".join(pdf_text(by_q, 2).split())
+    assert "aligned by dynamic pressure" in page2_q
+    # the two fan settings share no q: the page says so in words and draws no overlay
+    assert "Cp overlay: the sessions share no dynamic pressure" in page2_q and "Cp of each session" not in page2_q
     figs = tmp_path / "figs"
     assert handout(sessions["airfoil"], other, "--png", figs)[0] == 0
-    assert (figs / "comparison.png").exists()
+    assert (figs / "comparison.png").exists() and ink(figs / "comparison-cp.png") > 0.005
+    assert handout(sessions["airfoil"], other, "--png", tmp_path / "figs-q", "--align", "q")[0] == 0
+    assert (tmp_path / "figs-q" / "comparison.png").exists()
+    assert not (tmp_path / "figs-q" / "comparison-cp.png").exists()  # nothing shared: no figure
+
+
+def test_the_comparison_overlays_each_sessions_cp_at_a_shared_angle_with_its_error_bars(sessions, faster, tmp_path):
+    from taprig.report import load_session
+    from taprig.report.figures import draw_cp_overlay
+    from taprig.report.style import new_figure
+
+    pdf = tmp_path / "both.pdf"
+    assert handout(sessions["airfoil"], faster, "-o", pdf)[0] == 0
+    page2 = " ".join(pdf_text(pdf, 2).split())
+    m = re.search(r"Cp of each session at a shared angle, α = (-?\d+\.\d)°", page2)
+    assert m, page2[-1500:]
+    shared = float(m.group(1))
+    # drawn again onto an Axes: one upper and one lower series per session, at the shared commanded angle
+    contents = [load_session(sessions["airfoil"]), load_session(faster)]
+    fig = new_figure()
+    ax = fig.add_subplot()
+    assert draw_cp_overlay(ax, contents, "alpha") == ""
+    series = {c.get_label(): c for c in ax.containers}
+    assert len(series) == 4 and ax.yaxis_inverted()
+    markers = {}
+    for content, path in zip(contents, (sessions["airfoil"], faster)):
+        with SessionReader(path) as r:
+            records = [p.data for p in r.points()
+                       if abs(math.degrees(p.data["alpha_rad"]) - shared) < 1e-6]  # the sweep's commanded angle
+        assert len(records) == 1, f"{path.name}: {len(records)} points at {shared}°"
+        cp, u = records[0]["cp"], records[0]["u_cp"]
+        layout = content.rig.tap_layout()
+        for surface in ("upper", "lower"):
+            (label, bars), = [(k, v) for k, v in series.items() if k.startswith(path.name) and k.endswith(surface)]
+            assert f"q {pm(records[0]['q_pa'], records[0]['u_q_pa'])} Pa" in label
+            assert label.split(":")[0] in page2  # the legend is printed on the page
+            taps = {float(x): n for n, x, up in zip(layout.names, layout.x_c, layout.upper)
+                    if bool(up) == (surface == "upper")}
+            (bar,) = bars.lines[2]
+            segments = bar.get_segments()
+            assert len(segments) == sum(cp[n] is not None for n in taps.values())
+            # each bar is a tap of the record: centred on its Cp, half-length its u(Cp) (the records' own values)
+            for (x0, lo), (_, hi) in segments:
+                name = taps[float(x0)]
+                assert abs(0.5 * (lo + hi) - cp[name]) < 1e-9 and abs(0.5 * abs(hi - lo) - u[name]) < 1e-9
+            line = bars.lines[0]
+            markers.setdefault(path.name, set()).add((line.get_marker(), surface, str(line.get_markerfacecolor())))
+    # sessions differ in marker shape (grey print), surfaces in fill, as on the single-session Cp pages
+    shapes = {name: {m for m, _, _ in v} for name, v in markers.items()}
+    assert len(shapes["airfoil.taprig"]) == 1 and shapes["airfoil.taprig"] != shapes["faster.taprig"]
+    for v in markers.values():
+        fills = {s: f for _, s, f in v}
+        assert fills["upper"] != fills["lower"]
 
 
 def _one_line(err: str) -> str:

@@ -241,6 +241,12 @@ def test_a_sweep_from_the_page_takes_its_points_and_can_be_stopped(live):
     # thin-airfoil theory: 0.1097 per degree (docs/REFERENCES.md); the simulated section's viscous loss lowers it
     assert 0.07 < curve["slope_per_deg"] < 0.12 and curve["u_slope_systematic_per_deg"] > 0
     assert abs(curve["alpha_zero_lift_deg"]) < 1.0  # a symmetric section (NACA 0012): zero lift at 0°
+    # the page shows the server's sentences (taprig.analysis.wording): the slope with its combined u, Cl max with its u
+    from taprig.analysis.wording import pm
+
+    u_slope = math.hypot(curve["u_slope_scatter_per_deg"], curve["u_slope_systematic_per_deg"])
+    assert curve["lines"][0].startswith(f"Lift slope {pm(curve['slope_per_deg'], u_slope)} per degree")
+    assert f"Cl max {pm(curve['cl_max'], curve['u_cl_max'])}" in curve["lines"][2]
     # refused before anything moves: reversed range, outside the servo's limits
     assert "below" in live.post("/api/live/sweep-start", {"from_deg": 4, "to_deg": 0}).get_json()["error"]
     assert "limits" in live.post("/api/live/sweep-start", {"from_deg": 0, "to_deg": 40}).get_json()["error"]

@@ -216,7 +216,7 @@ def test_a_sweep_from_the_page(browser, bench):
             page.page.fill(field, value)
         page.page.click("#b-sweep")
         page.until("() => document.getElementById('sweep-state').textContent === 'sweep done'", 180)
-        page.until("() => document.getElementById('lift-legend').textContent.startsWith('lift slope')")
+        page.until("() => document.getElementById('lift-legend').textContent.startsWith('Lift slope')")
         rows = page.page.eval_on_selector_all("#points tbody tr td:nth-child(3)", "tds => tds.map(t => t.textContent)")
         assert rows[-3:] == ["0.00", "2.00", "4.00"]
         page.shot("sweep")

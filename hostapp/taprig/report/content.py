@@ -20,9 +20,9 @@ from types import SimpleNamespace
 import numpy as np
 
 from taprig.analysis import SweepAnalysis, analyse_points
+from taprig.analysis.wording import as_number
 from taprig.reduce import ReduceError
 from taprig.reduce.curves import Curve, reference_curves, shape_fit_curve
-from taprig.report.style import as_number
 from taprig.rig import Calibration, Rig, RigError, RigKind
 from taprig.runtime.viewframe import point_record_summary
 from taprig.session.api import Session, session_summary

@@ -10,10 +10,10 @@ import math
 import numpy as np
 
 from taprig.analysis import ISO_MACHINED
+from taprig.analysis.wording import as_number, pm
 from taprig.reduce.curves import THIN_AIRFOIL_SLOPE
 from taprig.report.content import PointView, SessionContent
-from taprig.report.style import (BALANCE, DOWN, GREY, INK, LOWER, ONE_WAY, THEORY, UP, UPPER, VERMILION, cycle,
-                                 as_number, marker_only, pm, reynolds)
+from taprig.report.style import BALANCE, DOWN, GREY, INK, LOWER, ONE_WAY, THEORY, UP, UPPER, VERMILION, cycle, marker_only
 from taprig.rig import RigKind
 
 DEG = 180.0 / math.pi
@@ -215,22 +215,6 @@ def draw_reynolds(ax, content: SessionContent, name: str = "cl", label: str = "C
     ax.legend(fontsize=7)
 
 
-def reynolds_results(content: SessionContent) -> list[str]:
-    """A Reynolds sweep's points in sentences (each coefficient with its uncertainty)."""
-    a = content.analysis
-    out = [f"A sweep of the fan at α = {np.nanmean(a.table.alpha_set_rad) * DEG:.1f}°: the coefficients against "
-           "the Reynolds number; no lift curve (one angle)."]
-    t = a.table
-    for i in np.argsort(t.re, kind="stable"):
-        parts = [f"Re {reynolds(t.re[i], t.u_re[i])}"]
-        for name, label in (("cl", "Cl"), ("cd_p", "Cd_p"), ("cm_qc", "Cm¼")):
-            v = pm(getattr(t, name)[i], getattr(t, f"u_{name}")[i])
-            if v is not None:
-                parts.append(f"{label} {v}")
-        out.append(", ".join(parts) + (f" ({t.leg[i]})" if t.leg[i] else "") + ".")
-    return out
-
-
 def draw_polar(ax, content: SessionContent) -> None:
     """Pressure drag against lift (Cd_p: taps only, no skin friction)."""
     a = content.analysis
@@ -277,64 +261,6 @@ def draw_unsteadiness(ax, content: SessionContent) -> None:
     ax.set_ylabel("Cp RMS / attached level")
     ax.legend(fontsize=7)
     ax.grid(True, lw=0.3, alpha=0.5)
-
-
-def lift_results(content: SessionContent) -> list[str]:
-    """The lift curve's numbers as sentences, each with its uncertainty, or the reason it is not there."""
-    a = content.analysis
-    if a is None:
-        return ["No point with flow: nothing to analyse."]
-    out = []
-    fit = a.fit
-    if fit is not None:
-        out.append(f"Lift slope {pm(fit.slope_per_deg, fit.u_slope_scatter * math.pi / 180)} per degree (scatter) "
-                   f"± {fit.u_slope_systematic * math.pi / 180:.4f} (shared systematic part), "
-                   f"{pm(fit.slope, fit.u_slope)} per radian in all against thin-airfoil 2π = "
-                   f"{THIN_AIRFOIL_SLOPE:.3f}, linear over "
-                   f"{fit.alpha_range[0] * DEG:.1f}…{fit.alpha_range[1] * DEG:.1f}° ({fit.n_points} points).")
-        out.append(f"Zero-lift angle {pm(fit.alpha_zero * DEG, fit.u_alpha_zero_scatter * DEG)}° (scatter) "
-                   f"± {fit.u_alpha_zero_systematic * DEG:.2f}° (systematic).")
-    else:
-        out.append(f"No linear fit: {a.reasons.get('fit', 'too few points')}.")
-    stall = a.stall
-    if stall is not None:
-        cl_max = pm(stall.cl_max, stall.u_cl_max) or f"{stall.cl_max:.3f} (no uncertainty)"
-        text = f"Cl max {cl_max} at α = {stall.alpha_cl_max * DEG:.1f}°"
-        if stall.stalled:
-            text += (f"; stall at {stall.alpha_stall * DEG:.1f}° ± {stall.resolution * DEG:.1f}° (half the step), "
-                     + ("abrupt (Cl falls by more than a fifth within 2°)" if stall.abrupt else "gradual") + ".")
-        else:
-            text += f"; {a.reasons.get('stall', 'no stall within the sweep')}."
-        out.append(text)
-    h = a.hysteresis
-    if h is not None:
-        if h.present:
-            k = int(np.nanargmax(np.abs(h.delta)))
-            out.append(f"Hysteresis: up and down legs differ beyond twice their uncertainty over "
-                       f"{h.alpha_range[0] * DEG:.1f}…{h.alpha_range[1] * DEG:.1f}°; the largest difference "
-                       f"Cl(up) − Cl(down) is {pm(h.delta[k], h.u_delta[k])} at α = {h.alpha[k] * DEG:.1f}°.")
-        else:
-            out.append("Hysteresis: up and down legs agree within twice their uncertainty.")
-    else:
-        out.append("Hysteresis: " + a.reasons.get("hysteresis", "not measured") + ".")
-    if a.moment is not None:
-        out.append(f"dCm¼/dα {pm(a.moment.slope_per_deg, a.moment.u_slope * math.pi / 180)} per degree "
-                   "(0 when the aerodynamic centre is at the quarter chord).")
-    b = a.balance
-    if content.rig.balance is not None:
-        if b is not None and np.isfinite(b.u_difference).any() and np.isfinite(a.table.u_cl_balance).any():
-            k = int(np.nanargmax(np.abs(b.difference)))
-            out.append(f"Balance against pressures: Cl(pressures) − Cl(balance) agree within twice their "
-                       f"uncertainty at {int(b.agree.sum())} of {b.agree.size} points; the largest difference is "
-                       f"{pm(b.difference[k], b.u_difference[k])} at α = {b.alpha[k] * DEG:.1f}°.")
-        else:
-            out.append("Balance: " + a.reasons.get("balance", "its uncertainty was not recorded (older session)")
-                       + ".")
-    un = a.unsteadiness
-    if un is not None and math.isfinite(un.first_unsteady_alpha):
-        out.append(f"Unsteady (separated) flow from α = {un.first_unsteady_alpha * DEG:.1f}° "
-                   f"(indicator above {un.threshold:g}, a threshold of ours).")
-    return out
 
 
 # -- venturi -------------------------------------------------------------------------------------------------------
@@ -407,25 +333,6 @@ def _lines(text: str, width: int) -> list[str]:
     from taprig.report.style import wrap
 
     return wrap(text, width)
-
-
-def venturi_results(content: SessionContent) -> list[str]:
-    a = content.analysis
-    if a is None or a.stations is None:
-        return ["No point with flow through the venturi."]
-    s = a.stations
-    out = [f"Diameter ratio β = {s.beta:.3f}, inlet D = {s.inlet_diameter_m * 1e3:.1f} mm; ideal throat Cp "
-           f"{s.cp_ideal[s.throat]:.3f} (continuity and Bernoulli, referred to the inlet)."]
-    dc = a.discharge
-    if dc is not None:
-        out.append(f"Discharge coefficient C = {pm(dc.mean_c, dc.u_mean_c)} over Re_D "
-                   f"{np.nanmin(dc.re_d):.3g}…{np.nanmax(dc.re_d):.3g}; ISO 5167-4 states {ISO_MACHINED.c} ± "
-                   f"{100 * ISO_MACHINED.relative_uncertainty:g} % for a machined convergent.")
-        if a.iso_outside:
-            out.append("Outside the standard's range: " + "; ".join(a.iso_outside) + " (its C does not apply there).")
-    else:
-        out.append("C not measured: " + a.reasons.get("discharge", "no point with flow") + ".")
-    return out
 
 
 # -- rig sketch, calibration, comparison ---------------------------------------------------------------------------
@@ -526,3 +433,114 @@ def draw_comparison(ax, contents: list[SessionContent], align: str) -> None:
     ax.axhline(0, color=GREY, lw=0.5)
     ax.grid(True, lw=0.3, alpha=0.5)
     ax.legend(fontsize=7)
+
+
+# -- Cp of several sessions at a shared angle (or q) --------------------------------------------------------------
+
+def _align_value(p: PointView, align: str) -> float:
+    """A point's place on the comparison's axis: its commanded α [°] or its q [Pa]."""
+    if align == "alpha":
+        return as_number(p.record.get("alpha_rad")) * DEG
+    return as_number(p.record.get("q_pa"))
+
+
+def _step(values: np.ndarray, noise: float) -> float:
+    """The sweep's step: the smallest gap between its distinct values (values closer than ``noise`` are one
+    setting); inf for a session at one setting."""
+    v = np.sort(values[np.isfinite(values)])
+    gaps = np.diff(v)
+    gaps = gaps[gaps > noise]
+    return float(gaps.min()) if gaps.size else math.inf
+
+
+def overlay_points(contents: list[SessionContent], align: str) -> tuple[float | None, list[PointView], str]:
+    """The point of each session at an angle (or q) they all share, for :func:`draw_cp_overlay`:
+    ``(shared value, one point per session, "")``, or ``(None, [], why)`` in words.
+
+    Points are shared when they lie within half the finest sweep step of the first session's point (for q, and
+    never closer than three times the largest stated u(q), so that one fan setting's noise is not a step). Of the
+    shared values, the one nearest the middle of the first session's linear lift range is taken (attached flow),
+    else the one nearest its median; among several matching points of a session (q of an angle sweep), the one
+    nearest the first session's angle.
+    """
+    kinds = {c.rig.kind for c in contents}
+    if len(kinds) > 1:
+        return None, [], ("the sessions are of different kinds of model (" + ", ".join(sorted(k.value for k in kinds))
+                          + "): their Cp cannot be overlaid")
+    pts = [[p for p in c.shown if math.isfinite(_align_value(p, align))] for c in contents]
+    if any(not p for p in pts):
+        return None, [], "a session has no point with numbers to overlay"
+    x = [np.array([_align_value(p, align) for p in ps]) for ps in pts]
+    if align == "alpha":
+        noise = 1e-3
+    else:
+        u_q = [as_number(p.record.get("u_q_pa")) for ps in pts for p in ps]
+        noise = 3 * max([u for u in u_q if math.isfinite(u)] or [0.0])
+    steps = [_step(v, noise) for v in x]
+    finest = min(steps)
+    tol = max(0.5 * finest if math.isfinite(finest) else 0.0, noise, 1e-6 if align == "alpha" else 0.0)
+    a0 = [as_number(p.record.get("alpha_rad")) for p in pts[0]]
+    first = contents[0].analysis
+    if align == "alpha" and first is not None and first.fit is not None:
+        centre = 0.5 * (first.fit.alpha_range[0] + first.fit.alpha_range[1]) * DEG
+    else:
+        centre = float(np.median(x[0]))
+    for k in np.argsort(np.abs(x[0] - centre), kind="stable"):
+        chosen = [pts[0][k]]
+        for ps, v in zip(pts[1:], x[1:]):
+            near = np.flatnonzero(np.abs(v - x[0][k]) <= tol)
+            if not near.size:
+                break
+            da = np.array([abs(as_number(ps[j].record.get("alpha_rad")) - a0[k]) for j in near])
+            order = np.lexsort((np.abs(v[near] - x[0][k]), np.nan_to_num(da, nan=np.inf)))
+            chosen.append(ps[near[order[0]]])
+        else:
+            return float(x[0][k]), chosen, ""
+    what = "angle of attack" if align == "alpha" else "dynamic pressure"
+    within = (f"{tol:.2g}°" if align == "alpha" else f"{tol:.3g} Pa")
+    return None, [], (f"the sessions share no {what}: no point of every session lies within {within} of another's "
+                      "(half the finest sweep step), so no Cp is overlaid")
+
+
+def draw_cp_overlay(ax, contents: list[SessionContent], align: str) -> str:
+    """Cp of each session's point at a shared angle (or q), each with its error bars: sessions told apart by
+    colour and marker shape, surfaces by fill and line style (upper filled and solid, lower open and dashed, as on
+    the Cp pages). Returns "" when drawn, else the sentence why not (nothing drawn)."""
+    value, points, why = overlay_points(contents, align)
+    if value is None:
+        return why
+    for i, (c, p) in enumerate(zip(contents, points)):
+        style = cycle(i)
+        layout = c.rig.tap_layout()
+        cp_map, u_map = p.record.get("cp") or {}, p.record.get("u_cp") or {}
+        cp = np.array([as_number(cp_map.get(n)) for n in layout.names])
+        u = np.array([as_number(u_map.get(n)) for n in layout.names])
+        alpha = as_number(p.record.get("alpha_rad"))
+        q = pm(p.record.get("q_pa"), p.record.get("u_q_pa"))
+        name = (f"{c.path.name}, {p.label}: "
+                + (f"α {alpha * DEG:.1f}°, " if math.isfinite(alpha) and "α" not in p.label else "")
+                + (f"q {q} Pa" if q is not None else "q without its uncertainty"))
+        if layout.x_c is not None:
+            x = np.asarray(layout.x_c, dtype=float)
+            upper = np.asarray(layout.upper, dtype=bool) if layout.upper is not None else np.ones(x.size, dtype=bool)
+            for mask, surface, fill, ls in ((upper, "upper", style["color"], "-"), (~upper, "lower", "white", "--")):
+                if mask.any():
+                    _errorbar(ax, x[mask], cp[mask], u[mask], {**style, "mfc": fill, "ls": ls},
+                              label=f"{name}, {surface}" if layout.upper is not None else name)
+            ax.set_xlabel("x/c")
+        elif layout.theta is not None:
+            _errorbar(ax, np.degrees(np.asarray(layout.theta, dtype=float)), cp, u, style, label=name)
+            ax.set_xlabel("θ from the front stagnation point [°]")
+        elif layout.x is not None:
+            _errorbar(ax, np.asarray(layout.x, dtype=float) * 1e3, cp, u, style, label=name)
+            ax.set_xlabel("station x [mm]")
+        else:
+            _errorbar(ax, np.arange(cp.size), cp, u, style, label=name)
+    shared = f"a shared angle, α = {value:.1f}°" if align == "alpha" else "a shared dynamic pressure (q ± u below)"
+    ax.set_title(f"Cp of each session at {shared}", fontsize=9)
+    ax.invert_yaxis()
+    ax.set_ylabel("Cp  (negative up)")
+    ax.axhline(0.0, color=GREY, lw=0.5)
+    ax.grid(True, lw=0.3, alpha=0.5)
+    ax.legend(fontsize=6, loc="best", framealpha=0.85)
+    return ""

@@ -20,10 +20,12 @@ from typing import Callable, Sequence
 
 import numpy as np
 
+from taprig.analysis import ISO_MACHINED, wording
+from taprig.analysis.wording import as_number, pm, reynolds
 from taprig.physics.units import Unit, from_si
 from taprig.report import figures as F
 from taprig.report.content import HandoutError, SessionContent, load_session
-from taprig.report.style import GREY, INK, VERMILION, Writer, as_number, new_figure, new_page, pm, reynolds
+from taprig.report.style import GREY, INK, VERMILION, Writer, new_figure, new_page
 from taprig.rig import RigKind
 
 ALIGN_CHOICES = ("alpha", "q")
@@ -223,7 +225,7 @@ def _results(fig, lines: list[str], y: float, size: float = 8.0) -> None:
 def reynolds_page(c: SessionContent, n: int):
     fig = _page_with(c, "Coefficients against the Reynolds number", n)
     F.draw_reynolds(fig.add_axes([0.1, 0.60, 0.82, 0.33]), c)
-    _results(fig, F.reynolds_results(c), 0.55)
+    _results(fig, wording.reynolds_lines(c.analysis), 0.55)
     F.draw_reynolds(fig.add_axes([0.1, 0.07, 0.36, 0.27]), c, "cd_p", "Cd_p")
     F.draw_reynolds(fig.add_axes([0.58, 0.07, 0.36, 0.27]), c, "cm_qc", "Cm¼")
     return fig
@@ -235,7 +237,8 @@ def lift_page(c: SessionContent, n: int):
     fig = _page_with(c, "Lift curve, stall and hysteresis", n)
     ax = fig.add_axes([0.1, 0.56, 0.82, 0.38])
     F.draw_lift(ax, c)
-    _results(fig, F.lift_results(c), 0.51)
+    _results(fig, wording.lift_lines(c.analysis) if c.analysis is not None else
+             ["No point with flow: nothing to analyse."], 0.51)
     if c.analysis is not None and c.analysis.unsteadiness is not None:
         F.draw_polar(fig.add_axes([0.10, 0.07, 0.23, 0.25]), c)
         F.draw_moment(fig.add_axes([0.42, 0.07, 0.23, 0.25]), c)
@@ -249,7 +252,8 @@ def lift_page(c: SessionContent, n: int):
 def venturi_page(c: SessionContent, n: int):
     fig = _page_with(c, "Venturi: pressures, flow rate, discharge coefficient", n)
     F.draw_venturi_cp(fig.add_axes([0.1, 0.62, 0.82, 0.31]), c)
-    _results(fig, F.venturi_results(c), 0.57)
+    _results(fig, wording.venturi_lines(c.analysis, ISO_MACHINED, per_point=False) if c.analysis is not None else
+             ["No point with flow through the venturi."], 0.57)
     F.draw_venturi_flow(fig.add_axes([0.1, 0.08, 0.36, 0.36]), c)
     F.draw_discharge(fig.add_axes([0.58, 0.08, 0.36, 0.36]), c)
     return fig
@@ -284,10 +288,9 @@ def theory_page(c: SessionContent, n: int):
                      "cylinder separates (near 80° when laminar, common practice) and its base pressure stays "
                      "negative: a gap between the curves behind the shoulders is the wake.")
     for p in c.shown:
-        cd = F.best_coefficients(p.record)
-        v = pm(cd.get("cd_p"), cd.get("u_cd_p"))
-        if v is not None:
-            lines.append(f"{p.label}: Cd_p {v} (pressure drag only), Re {reynolds(p.record.get('re'), p.record.get('u_re'))}.")
+        line = wording.drag_point_line(p.label, F.best_coefficients(p.record), p.record)
+        if line is not None:
+            lines.append(line)
     _results(fig, lines, 0.44)
     return fig
 
@@ -383,20 +386,21 @@ def table_pages(c: SessionContent, first: int) -> list:
 def comparison_page(contents: Sequence[SessionContent], align: str, n: int):
     c = contents[0]
     fig = _page_with(c, "Sessions compared", n)
-    F.draw_comparison(fig.add_axes([0.1, 0.5, 0.82, 0.42]), list(contents), align)
+    F.draw_comparison(fig.add_axes([0.1, 0.64, 0.82, 0.28]), list(contents), align)
     lines = []
     for s in contents:
         a = s.analysis
-        text = f"{s.path.name} ({s.title}, {_started(s.meta)}): {len(s.shown)} points with numbers"
-        if a is not None and a.fit is not None:
-            text += (f"; lift slope {pm(a.fit.slope_per_deg, a.fit.u_slope * math.pi / 180)} per degree, "
-                     f"zero lift at {pm(math.degrees(a.fit.alpha_zero), math.degrees(a.fit.u_alpha_zero))}°")
-        if a is not None and a.stall is not None and a.stall.stalled:
-            text += f"; stall at {math.degrees(a.stall.alpha_stall):.1f}°"
-        if a is not None and a.discharge is not None:
-            text += f"; C = {pm(a.discharge.mean_c, a.discharge.u_mean_c)}"
+        text = "; ".join([f"{s.path.name} ({s.title}, {_started(s.meta)}): {len(s.shown)} points with numbers",
+                          *(wording.brief(a) if a is not None else ())])
         lines.append(text + ".")
-    _results(fig, lines, 0.44)
+    w = Writer(fig, y=0.595)
+    w.bullets(lines)
+    overlay = fig.add_axes([0.1, 0.07, 0.82, min(0.42, w.y - 0.13)])
+    why = F.draw_cp_overlay(overlay, list(contents), align)
+    if why:  # no shared angle (or q): the reason in words, no figure
+        fig.delaxes(overlay)
+        w.gap()
+        w.para("Cp overlay: " + why + ".")
     return fig
 
 
@@ -495,7 +499,7 @@ def write_figures(paths: Sequence[str | Path], folder: str | Path, align: str = 
     """Write every drawing of the sessions as its own PNG into ``folder`` (made if missing); returns the files.
 
     Files are named ``<session stem>-<drawing>.png`` (``lift-curve``, ``cp-03`` …) and ``comparison.png`` for
-    several sessions.
+    several sessions, with ``comparison-cp.png`` (their Cp at a shared angle or q) where they share one.
     """
     if align not in ALIGN_CHOICES:
         raise HandoutError(f"align {align!r}: expected one of {', '.join(ALIGN_CHOICES)}", 2)
@@ -526,4 +530,7 @@ def write_figures(paths: Sequence[str | Path], folder: str | Path, align: str = 
         fig = new_figure()
         F.draw_comparison(fig.add_subplot(), contents, align)
         save(fig, "comparison")
+        fig = new_figure()
+        if not F.draw_cp_overlay(fig.add_subplot(), contents, align):
+            save(fig, "comparison-cp")
     return written

@@ -1,5 +1,5 @@
-"""How the handout looks: series told apart by marker, fill and line style as well as colour, and numbers written
-with their uncertainty.
+"""How the handout looks: series told apart by marker, fill and line style as well as colour. Numbers are written
+with their uncertainty by :mod:`taprig.analysis.wording` (the terminal and the dashboard use the same).
 
 Colours are from Okabe and Ito's palette for colour-blind readers ("Color Universal Design", 2008); every pair of
 series that a reader must tell apart also differs in marker shape, marker fill and line style, so the figures read
@@ -8,7 +8,6 @@ the same in grey print.
 
 from __future__ import annotations
 
-import math
 import textwrap
 
 BLUE, VERMILION, GREEN, ORANGE, PURPLE, SKY, INK, GREY = ("#0072B2", "#D55E00", "#009E73", "#E69F00", "#CC79A7",
@@ -43,55 +42,6 @@ def cycle(i: int) -> dict:
 def marker_only(style: dict) -> dict:
     """``style`` without its label, for errorbar calls that draw the markers and bars only."""
     return {k: v for k, v in style.items() if k != "label"}
-
-
-def decimals(u: float) -> int:
-    """Decimal places that show ``u`` to two significant digits (GUM §7.2.6: two at most), 0…7."""
-    if not math.isfinite(u) or u <= 0:
-        return 4
-    return max(0, min(7, 1 - int(math.floor(math.log10(float(f"{u:.2g}"))))))
-
-
-def pm(value, u, scale: float = 1.0) -> str | None:
-    """``value ± u`` (each times ``scale``) rounded to the uncertainty's two significant digits, or None when either
-    is not a finite number (then the caller shows a state or a reason, never a bare number)."""
-    try:
-        v, e = float(value) * scale, abs(float(u) * scale)
-    except (TypeError, ValueError):
-        return None
-    if not (math.isfinite(v) and math.isfinite(e)):
-        return None
-    d = decimals(e)
-    return f"{v:.{d}f} ± {e:.{d}f}"
-
-
-def as_number(value) -> float:
-    """``value`` as a float; NaN for a missing or non-numeric record value."""
-    try:
-        return float(value)
-    except (TypeError, ValueError):
-        return math.nan
-
-
-def pm_exponent(value, u) -> str | None:
-    """``(m ± u_m)e k``: :func:`pm` of ``value`` and ``u`` over 10^k, k the exponent of ``value`` (a Reynolds
-    number's six digits would hide the two of its uncertainty), or None as :func:`pm`."""
-    v = as_number(value)
-    if not math.isfinite(v) or v == 0.0:
-        return None
-    k = int(math.floor(math.log10(abs(v))))
-    text = pm(v, u, 10.0**-k)
-    return None if text is None else f"({text})e{k}"
-
-
-def reynolds(value, u) -> str:
-    """A Reynolds number for the page: :func:`pm_exponent` with its uncertainty, ``≈ value (u not stated)`` for a
-    record that states none (a description of the conditions, to two figures), or ``–`` when there is no value."""
-    text = pm_exponent(value, u)
-    if text is not None:
-        return text
-    v = as_number(value)
-    return f"≈ {v:.1e} (u not stated)" if math.isfinite(v) else "–"
 
 
 def wrap(text: str, width: int) -> list[str]:

@@ -26,7 +26,7 @@ import numpy as np
 
 from taprig.protocol import ActuatorKind, DeviceState
 from taprig.reduce import ReduceError, ScanFlag
-from taprig.analysis import find_stall, linear_range_fit
+from taprig.analysis import find_stall, linear_range_fit, wording
 from taprig.runtime.acquisition import Acquisition, AcquisitionError, LiveState
 from taprig.runtime.hub import Hub
 from taprig.runtime.viewframe import (actuator_value_from_operator, flow_state, num, point_summary, reading,
@@ -153,7 +153,8 @@ class Display:
     def points_view(self) -> dict:
         """Captured points and, from three or more with lift, the lift curve of :mod:`taprig.analysis` (the same
         analysis as the handout): slope and zero-lift angle with their scatter and shared systematic parts, Cl max
-        and the stall, against the wall-corrected angle where the coefficients are corrected."""
+        and the stall, against the wall-corrected angle where the coefficients are corrected; ``lines`` says them
+        in :mod:`taprig.analysis.wording`'s words (the page shows those, as the terminal and the handout do)."""
         with self._lock:
             points = list(self.points)
         usable = [p for p in points if p["cl"] is not None and p["alpha_deg"] is not None]
@@ -168,7 +169,9 @@ class Display:
         except ValueError:  # too few distinct angles for a line
             return {"points": points, "lift_curve": None}
         per_deg = math.pi / 180
-        return {"points": points, "lift_curve": {
+        walls = any(p["alpha_corrected_deg"] is not None for p in usable)
+        lines = [wording.slope_sentence(fit, walls), wording.zero_lift_sentence(fit), wording.stall_sentence(stall)]
+        return {"points": points, "lift_curve": {"lines": lines,
             "slope_per_deg": num(fit.slope * per_deg), "u_slope_scatter_per_deg": num(fit.u_slope_scatter * per_deg),
             "u_slope_systematic_per_deg": num(fit.u_slope_systematic * per_deg),
             "alpha_zero_lift_deg": num(math.degrees(fit.alpha_zero)), "u_alpha_zero_deg": num(math.degrees(fit.u_alpha_zero)),

@@ -477,9 +477,9 @@ function drawLift(data) {
   if (lc && lc.stalled) { const j = all.findIndex((x) => x === lc.alpha_cl_max_deg); if (j >= 0) stall[j] = lc.cl_max; }
   charts.lift.series[1].err = err;
   charts.lift.setData([all, cl, bal, theory, stall]);
-  $("lift-legend").textContent = lc ? `lift slope ${fmt(lc.slope_per_deg, 4)} ± ${fmt(lc.u_slope_scatter_per_deg, 4)} (scatter) ± ${fmt(lc.u_slope_systematic_per_deg, 4)} (shared systematic) per degree over ${fmt(lc.linear_range_deg[0], 1)}…${fmt(lc.linear_range_deg[1], 1)}°; zero lift at ${fmt(lc.alpha_zero_lift_deg, 2)} ± ${fmt(lc.u_alpha_zero_deg, 2)}°; ` +
-    (lc.stalled ? `stall at ${fmt(lc.alpha_cl_max_deg, 1)}°, Cl max ${fmt(lc.cl_max)} ± ${fmt(lc.u_cl_max)}` : `no stall yet (Cl max ${fmt(lc.cl_max)})`) +
-    (slope ? `. Dashed: thin-airfoil theory, 2π per radian (${(slope).toFixed(4)} per degree) through the measured zero-lift angle.` : "")
+  // the words are the server's (taprig.analysis.wording, as the terminal and the handout say them)
+  $("lift-legend").textContent = lc ? lc.lines.join(" ") +
+    (slope ? " Dashed: thin-airfoil theory, 2π per radian, through the measured zero-lift angle." : "")
     : "Capture three or more points with flow for a lift curve. Bars: ±1 standard uncertainty.";
 }
 
