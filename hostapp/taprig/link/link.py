@@ -517,6 +517,13 @@ class Link:
             self._broken = exc
             raise LinkDownError(f"writing {type(msg).__name__} to {self.port_name} failed: {exc}") from None
 
+    @property
+    def pacing(self):
+        """The port's device-time pacing, or None for a port without it (a real board): an object with
+        ``board_time_ns()`` and ``set_horizon(board_ns)``, the simulated board's (docs/simulator.md, Time)."""
+        port = self._port
+        return port if port is not None and hasattr(port, "set_horizon") else None
+
     def command(self, msg, timeout: float = 1.0, guard: Callable[[float], None] | None = None) -> Reply:
         """Send a host command with a fresh request id and wait for its ``REPLY``.
 

@@ -43,6 +43,11 @@ class AcquisitionError(Exception):
     """A run that cannot start or a command that cannot be carried out, with a message for the operator."""
 
 
+#: A paced run's allowance for the host to decide [s of device time]: a command decided on the scans up to a device
+#: time t acts at t + this (docs/sweeps.md, Device time).
+DECISION_S = 0.5
+#: A paced stream starts on a whole second of the board's clock, at least DECISION_S after the open [s].
+START_GRID_S = 1.0
 #: Longest wait for the board's reply to each safe value sent at shutdown [s].
 SHUTDOWN_REPLY_S = 2.0
 #: How long the ending waits for a link lost a moment before it to be made again, so the safe values reach the
@@ -146,6 +151,17 @@ class _Window:
         while self.blocks and newest - self.blocks[0].t_ns[-1] > self.seconds * 1e9:
             self.blocks.popleft()
 
+    def between(self, start_ns: int, end_ns: int) -> RawBlock | None:
+        """The scans with start_ns ≤ t < end_ns [device ns], whatever blocks they came in; None if there are none."""
+        chosen = [b for b in self.blocks if b.t_ns[-1] >= start_ns and b.t_ns[0] < end_ns]
+        if not chosen:
+            return None
+        block = RawBlock.concat(chosen)
+        keep = (block.t_ns >= start_ns) & (block.t_ns < end_ns)
+        if keep.all():
+            return block
+        return RawBlock(block.counts[keep], block.channels, block.t_ns[keep], block.scan_index[keep])
+
     def last(self, seconds: float) -> RawBlock | None:
         if not self.blocks:
             return None
@@ -193,7 +209,10 @@ class Acquisition:
         self.last_log = ""
         self.device_state: DeviceState | None = None  # from the board's latest STATUS
         self._window = _Window(window_s)
-        self._window_lock = threading.Lock()
+        self._window_lock = threading.Condition()
+        self._paced = False
+        #: Device time [ns] at which a paced stream starts (:meth:`open`), None otherwise.
+        self.stream_start_ns: int | None = None
         # The newest reduced blocks with what reduced them (reducer, angle): the display's means reuse them
         self._reduced: deque = deque()
         self._reduced_lock = threading.Lock()
@@ -219,8 +238,13 @@ class Acquisition:
         self._unsubscribe = link.subscribe(self._on_chunk, self._on_link_event)
 
     # -- starting and stopping ----------------------------------------------------------------------------
-    def open(self, rate_hz: float) -> Description:
-        """Open the link, check the board against the rig, and start streaming the rig's channels at ``rate_hz``."""
+    def open(self, rate_hz: float, paced: bool = False) -> Description:
+        """Open the link, check the board against the rig, and start streaming the rig's channels at ``rate_hz``.
+
+        ``paced``: on a board that can be paced in device time (the simulated one, :attr:`paced`), the stream
+        starts on the first whole second of the board's clock at least ``DECISION_S`` ahead, and the board waits
+        there (in compressed time) until the caller moves the horizon on (:meth:`pace`): so a sweep's scans are
+        the same in real and in compressed time. Elsewhere ``paced`` changes nothing."""
         try:
             self.description = self.link.open()
         except LinkError as exc:
@@ -237,6 +261,12 @@ class Acquisition:
             self.writer.set_meta("device_description", _description_json(self.description))
         self._thread.start()
         mask = channels_to_mask([c.index for c in self.rig.channels])
+        pacing = self.link.pacing if paced else None
+        if pacing is not None:
+            grid = START_GRID_S * 1e9
+            self.stream_start_ns = math.ceil((pacing.board_time_ns() + DECISION_S * 1e9) / grid) * grid
+            pacing.set_horizon(self.stream_start_ns)
+            self._paced = True
         try:
             self.link.start_stream(rate_hz, channel_mask=mask)
         except LinkError as exc:
@@ -431,8 +461,11 @@ class Acquisition:
         return writer
 
     # -- commands and operator events -----------------------------------------------------------------------
-    def set_actuator(self, name: str, value: float) -> None:
-        """Drive an actuator (value in SI: radians for an angle) and record the setpoint as an event."""
+    def set_actuator(self, name: str, value: float, at_t_ns: int | None = None) -> None:
+        """Drive an actuator (value in SI: radians for an angle) and record the setpoint as an event.
+
+        ``at_t_ns``: the device time at which a paced run's command acts (the horizon it set), recorded with the
+        setpoint (with ``late`` when scans past it had arrived before the command went out)."""
         actuator = next((a for a in self.rig.actuators if a.name == name), None)
         if actuator is None:
             raise AcquisitionError(f"rig {self.rig.id!r} has no actuator {name!r}; it has "
@@ -444,7 +477,11 @@ class Acquisition:
             self._check_host_stall()
             self.check_running()
         previous = self.setpoints[name]
-        self._stamp_setpoint(actuator, value)
+        timing = None
+        if at_t_ns is not None:
+            newest = self.newest_t_ns
+            timing = {"at_t_ns": int(at_t_ns), "late": newest is not None and newest >= at_t_ns}
+        self._stamp_setpoint(actuator, value, timing=timing)
         try:
             self.link.set_actuator(actuator.id, actuator.to_device(value), guard=None if safe else self._last_look)
         except AcquisitionError:  # withheld at the last moment: the host froze or the board went safe meanwhile
@@ -460,7 +497,8 @@ class Acquisition:
         if not safe:
             self._driven = True
 
-    def _stamp_setpoint(self, actuator, value: float, refused: bool = False, by_board: bool = False) -> None:
+    def _stamp_setpoint(self, actuator, value: float, refused: bool = False, by_board: bool = False,
+                        timing: dict | None = None) -> None:
         with self._schedule_lock:
             host_ns = time.time_ns()
             if actuator.kind is ActuatorKind.ANGLE:
@@ -471,6 +509,8 @@ class Acquisition:
                 data["refused"] = True
             if by_board:
                 data["by"] = "board"
+            if timing:
+                data.update(timing)
             self.event("setpoint", data, host_ns)
 
     @property
@@ -548,13 +588,14 @@ class Acquisition:
             while len(kept) > 1 and block.t_ns[-1] - kept[0][2].t_ns[-1] > 2e9:
                 kept.popleft()
 
-    def check_flow(self, seconds: float = 0.5) -> None:
-        """Raise :class:`AcquisitionError` unless most scans of the last ``seconds`` have flow (q above no-flow).
+    def check_flow(self, seconds: float = 0.5, window: tuple[int, int] | None = None) -> None:
+        """Raise :class:`AcquisitionError` unless most scans of the last ``seconds`` (or of the device-time
+        ``window`` [start, end) ns) have flow (q above no-flow).
 
         Says why when it can tell: the board's watchdog tripped (actuators at safe values), or the link is down.
         """
         self.check_running()
-        block = self.recent(seconds)
+        block = self._scans(seconds, window)
         if block is None:
             raise AcquisitionError(f"no data (link {self.link_state})")
         reduced = self._reduction_for(time.time_ns())[0].reduce(block, alpha_rad=self.alpha_rad)
@@ -568,13 +609,15 @@ class Acquisition:
         q = finite_mean(reduced.q_pa)
         raise AcquisitionError(f"no flow (q = {q:.1f} Pa): {reason}")
 
-    def capture_point(self, label: str, seconds: float = 2.0, extra: dict | None = None) -> ReducedMean:
-        """Average the last ``seconds`` into a point with uncertainties, record it and return it.
+    def capture_point(self, label: str, seconds: float = 2.0, extra: dict | None = None,
+                      window: tuple[int, int] | None = None) -> ReducedMean:
+        """Average the last ``seconds`` (or the scans of the device-time ``window`` [start, end) ns, a sweep's
+        exact window) into a point with uncertainties, record it and return it.
 
         The record (:func:`point_record`, with each tap's Cp fluctuation over the window) gets ``extra``'s fields
         too (a sweep's setpoints and leg); :attr:`last_record` keeps it.
         """
-        block = self.recent(seconds)
+        block = self._scans(seconds, window)
         self.check_running()  # after taking the scans: a halt is noted before any scan that follows it arrives
         if block is None or block.n_scans < 2:
             raise AcquisitionError("no data yet to capture a point from")
@@ -582,6 +625,8 @@ class Acquisition:
         mean = reducer.reduce_mean(block, alpha_rad=alpha)
         reduced = reducer.reduce(block, alpha_rad=alpha)
         record = point_record(mean, seconds)
+        if window is not None:
+            record["window_ns"] = [int(window[0]), int(window[1])]
         record["cp_rms"] = {t: _finite_or_none(v) for t, v in
                             zip(reduced.tap_names, tap_fluctuation(reduced.cp, reduced.q_pa))}
         record["setpoints"] = {name: float(v) for name, v in self.setpoints.items()}
@@ -591,12 +636,13 @@ class Acquisition:
             self.writer.add_point(label, record)
         return mean
 
-    def zero(self, seconds: float = 2.0, note: str = "") -> Calibration:
-        """Take a wind-off zero of every channel from the last ``seconds``, apply it and record it.
+    def zero(self, seconds: float = 2.0, note: str = "", window: tuple[int, int] | None = None) -> Calibration:
+        """Take a wind-off zero of every channel from the last ``seconds`` (or the device-time ``window``
+        [start, end) ns), apply it and record it.
 
         The spans of the calibration in force are kept; only the zeros change (absolute channels keep theirs).
         """
-        block = self.recent(seconds)
+        block = self._scans(seconds, window)
         if block is None or block.n_scans < 2:
             raise AcquisitionError("no data yet to take a zero from")
         names = [self.rig.channel(i).name for i in block.channels]
@@ -614,6 +660,57 @@ class Acquisition:
                 self.writer.add_snapshot("calibration", "wind-off zero", calibration_to_text(calibration), host_ns)
         return calibration
 
+    # -- device time -------------------------------------------------------------------------------------------
+    @property
+    def paced(self) -> bool:
+        """True when this run paces the board in device time (opened ``paced`` on a board that can be)."""
+        return self._paced and self.link.pacing is not None
+
+    def pace(self, board_ns: float | None) -> None:
+        """On a paced run: the next commands act at board-clock time ``board_ns`` [ns], and in compressed time the
+        board runs no further until the horizon moves on; None lets it run free. Elsewhere nothing."""
+        pacing = self.link.pacing if self._paced else None
+        if pacing is not None:
+            try:
+                pacing.set_horizon(board_ns)
+            except Exception:  # a port lost meanwhile: the reader notices and the run halts
+                pass
+
+    @property
+    def newest_t_ns(self) -> int | None:
+        """Device time of the newest scan received [ns], or None before any."""
+        with self._window_lock:
+            blocks = self._window.blocks
+            return int(blocks[-1].t_ns[-1]) if blocks else None
+
+    def wait_through(self, t_ns: int, timeout_s: float) -> None:
+        """Block until a scan at device time ``t_ns`` or later has arrived, so every scan before it is here.
+
+        :class:`AcquisitionError` when the run halts or is stopped meanwhile (the cause), or when no such scan
+        arrives within ``timeout_s`` of wall time beyond the device time still to go."""
+        newest = self.newest_t_ns
+        to_go = 0.0 if newest is None else max(0.0, (t_ns - newest) / 1e9)
+        deadline = time.monotonic() + timeout_s + to_go
+        with self._window_lock:
+            while True:
+                blocks = self._window.blocks
+                if blocks and int(blocks[-1].t_ns[-1]) >= t_ns:
+                    return
+                if time.monotonic() >= deadline:
+                    break
+                self.check_running()  # the board went safe, or the run is ending: stop waiting, say why
+                self._window_lock.wait(min(0.2, max(0.0, deadline - time.monotonic())))
+        self.check_running()
+        raise AcquisitionError(f"no data for {timeout_s:g} s while waiting for the flow to settle (link {self.link_state})")
+
+    def scans_between(self, start_ns: int, end_ns: int) -> RawBlock | None:
+        """The raw scans with start_ns ≤ t < end_ns [device ns] (within the kept window), or None."""
+        with self._window_lock:
+            return self._window.between(start_ns, end_ns)
+
+    def _scans(self, seconds: float, window: tuple[int, int] | None) -> RawBlock | None:
+        return self.recent(seconds) if window is None else self.scans_between(*window)
+
     # -- the link's threads -------------------------------------------------------------------------------
     def _on_chunk(self, chunk: bytes, host_ns: int, items: list) -> None:
         blocks = [item for item in items if isinstance(item, RawBlock)]
@@ -628,6 +725,7 @@ class Acquisition:
             with self._window_lock:
                 for block in blocks:
                     self._window.add(block)
+                self._window_lock.notify_all()
             self.scans += n_scans
         try:
             self._work.put_nowait((host_ns, items))

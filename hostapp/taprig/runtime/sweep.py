@@ -1,8 +1,12 @@
 """Sweeps: set each point's angle and fan (a :class:`taprig.runtime.plan.SweepPlan`), let the flow and the
 tubing settle, capture an averaged point.
 
-Waiting is on *device* time (the scans' own timestamps), so a sweep on the simulated rig in compressed time takes
-as long as the data does, and a sweep on a real board is not fooled by a slow host.
+Everything is timed on *device* time, the scans' own timestamps (:class:`Timeline`): each wait ends at a device
+time the sweep chose, each point averages the scans of an exact device-time window, and each command is meant to
+act at a device time the sweep chose too (``DECISION_S`` after the scans it was decided on). A board that can be
+paced (the simulated one) acts at exactly that time and, in compressed time, waits there for the host; so the
+same seed gives the same points in real and in compressed time. A real board acts when the command arrives, a
+moment before that time. A sweep on a real board is not fooled by a slow host either way.
 
 Every point's record carries what the analysis needs besides the reduced mean (docs/session-format.md, Points):
 the plan's index, leg and group, the commanded angle and fan setting, whether the angle was set by hand, and each
@@ -21,7 +25,7 @@ from taprig.protocol import ActuatorKind
 from taprig.reduce import ReducedMean
 from taprig.reduce.polar import LiftCurve, lift_curve
 from taprig.reduce.steady import Steadiness, SteadyCriteria, block_steadiness
-from taprig.runtime.acquisition import Acquisition, AcquisitionError
+from taprig.runtime.acquisition import DECISION_S, Acquisition, AcquisitionError
 from taprig.runtime.plan import PlanError, PlanPoint, SweepPlan, point_record_keys
 
 
@@ -49,6 +53,79 @@ def _angle_actuator(acq: Acquisition) -> str:
     if servo is None:
         raise AcquisitionError(f"rig {acq.rig.id!r} has no angle actuator; a sweep needs one")
     return servo.name
+
+
+class Timeline:
+    """A sweep's clock in device time [ns on the board's clock]: ``cursor`` is when its next command acts; ``end``
+    the end of its last wait, where the windows it averages end.
+
+    :meth:`wait_until` moves the board's horizon to ``end + DECISION_S`` (the next command's time) and waits for
+    the scans up to ``end``; so on a paced board the next command acts exactly ``DECISION_S`` after the scans it
+    was decided on, whatever the host's speed.
+    On a board that is not paced the windows end at the newest scan once the wait is over (the board did not wait
+    for the host), as close to the end asked for as the host's speed allows.
+    """
+
+    def __init__(self, acq: Acquisition, cursor_ns: int, timeout_s: float = 30.0):
+        self.acq, self.timeout_s = acq, timeout_s
+        self.cursor = int(cursor_ns)
+        self.end = int(cursor_ns)
+        acq.pace(self.cursor)
+
+    @classmethod
+    def begin(cls, acq: Acquisition, timeout_s: float = 30.0) -> Timeline:
+        """A timeline from the start of a paced stream (the same device time in every mode), else from the
+        newest scan (waiting for the first)."""
+        start = acq.stream_start_ns if acq.paced else None
+        if start is None:
+            acq.wait_through(-(1 << 62), timeout_s)  # any scan at all
+            start = acq.newest_t_ns
+        return cls(acq, start, timeout_s)
+
+    def wait(self, seconds: float, timeout_s: float | None = None) -> None:
+        """Wait until ``seconds`` of device time after the cursor."""
+        self.wait_until(self.cursor + round(seconds * 1e9), timeout_s)
+
+    def wait_until(self, end_ns: int, timeout_s: float | None = None) -> None:
+        """Wait for the scans up to device time ``end_ns``; the next command acts ``DECISION_S`` after it."""
+        self.cursor = int(end_ns) + round(DECISION_S * 1e9)
+        self.acq.pace(self.cursor)
+        self.acq.wait_through(int(end_ns), self.timeout_s if timeout_s is None else timeout_s)
+        self.end = int(end_ns)
+        if not self.acq.paced:  # the board ran on meanwhile (a real one a moment, an unpaced compressed one far):
+            self.end = max(self.end, self.acq.newest_t_ns or self.end)  # its newest scans, not ones long gone
+            self.cursor = self.end + round(DECISION_S * 1e9)
+
+    def window(self, seconds: float) -> tuple[int, int]:
+        """The device-time window [start, end) of ``seconds`` ending where the last wait ended."""
+        return self.end - round(seconds * 1e9), self.end
+
+    def set(self, name: str, value: float) -> None:
+        """Set an actuator, to act at the cursor (a paced board; a real one acts on arrival)."""
+        self.acq.set_actuator(name, value, at_t_ns=self.cursor if self.acq.paced else None)
+
+    def after_operator(self) -> None:
+        """The operator set something by hand just now: the next wait starts from now, not from before."""
+        newest = self.acq.newest_t_ns
+        if newest is not None:
+            self.cursor = max(self.cursor, newest + round(DECISION_S * 1e9))
+            self.acq.pace(self.cursor)
+
+    def steady(self, criteria: SteadyCriteria) -> Steadiness:
+        """Wait, from the end of the last wait on, until q and the coefficients of the ``criteria.hold_s`` before
+        the end are steady (:mod:`taprig.reduce.steady`); AcquisitionError saying what moved when
+        ``criteria.timeout_s`` of device time pass first."""
+        acq, first = self.acq, self.end
+        step = round(criteria.hold_s / criteria.windows * 1e9)
+        while True:
+            block = acq.scans_between(*self.window(criteria.hold_s))
+            verdict = block_steadiness(acq.reducer.reduce(block, alpha_rad=acq.alpha_rad), criteria) \
+                if block is not None and block.n_scans >= 2 else Steadiness(False, reason="no data yet")
+            if verdict.steady:
+                return verdict
+            if self.end - first >= criteria.timeout_s * 1e9:
+                raise AcquisitionError(f"the flow did not settle within {criteria.timeout_s:g} s: {verdict.reason}")
+            self.wait_until(self.end + step)
 
 
 def wait_device_time(acq: Acquisition, seconds: float, timeout_s: float) -> None:
@@ -79,22 +156,6 @@ def wait_device_time(acq: Acquisition, seconds: float, timeout_s: float) -> None
     raise AcquisitionError(f"no data for {timeout_s:g} s while waiting for the flow to settle (link {acq.link_state})")
 
 
-def wait_steady(acq: Acquisition, criteria: SteadyCriteria, timeout_s: float = 30.0) -> Steadiness:
-    """Wait until q and the coefficients of the newest ``criteria.hold_s`` are steady (:mod:`taprig.reduce.steady`);
-    AcquisitionError saying what moved when ``criteria.timeout_s`` of device time pass first."""
-    waited, step = 0.0, criteria.hold_s / criteria.windows
-    while True:
-        block = acq.recent(criteria.hold_s + 1.0)  # whole blocks: ask for more, the detector keeps the last hold_s
-        verdict = block_steadiness(acq.reducer.reduce(block, alpha_rad=acq.alpha_rad), criteria) \
-            if block is not None and block.n_scans >= 2 else Steadiness(False, reason="no data yet")
-        if verdict.steady:
-            return verdict
-        if waited >= criteria.timeout_s:
-            raise AcquisitionError(f"the flow did not settle within {criteria.timeout_s:g} s: {verdict.reason}")
-        wait_device_time(acq, step, timeout_s)
-        waited += step
-
-
 def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1.0, average_s: float = 1.0,
               timeout_s: float = 30.0, on_point: Callable[[SweepPoint], None] | None = None,
               stop: threading.Event | None = None,
@@ -114,23 +175,28 @@ def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1
     points = []
     acq.check_running()
     acq.event("sweep", {"angles_rad": list(map(float, angles_rad)), "settle_s": settle_s, "average_s": average_s})
-    for alpha in angles_rad:
-        if stop is not None and stop.is_set():
-            acq.event("sweep stopped", {"by": "operator", "points": len(points)})
-            break
-        acq.check_running()
-        acq.set_actuator(name, float(alpha))
-        wait_device_time(acq, settle_s + average_s, timeout_s)
-        acq.check_flow(average_s)  # a sweep of points without flow would be numbers without meaning
-        if steady is not None:
-            wait_steady(acq, replace(steady, hold_s=max(steady.hold_s, average_s)), timeout_s)
-        mean = acq.capture_point(f"alpha {math.degrees(alpha):+.1f} deg", average_s,
-                                 {"plan_index": len(points), "leg": "up", "plan_alpha_rad": float(alpha),
-                                  "fan": _fan_setting(acq), "by_hand": False})
-        point = SweepPoint(float(alpha), mean, None, acq.last_record)
-        points.append(point)
-        if on_point is not None:
-            on_point(point)
+    clock = Timeline.begin(acq, timeout_s)
+    clock.wait_until(clock.cursor)  # from the newest scan, or the start of a paced stream
+    try:
+        for alpha in angles_rad:
+            if stop is not None and stop.is_set():
+                acq.event("sweep stopped", {"by": "operator", "points": len(points)})
+                break
+            acq.check_running()
+            clock.set(name, float(alpha))
+            clock.wait(settle_s + average_s)
+            acq.check_flow(average_s, clock.window(average_s))  # points without flow would be numbers without meaning
+            if steady is not None:
+                clock.steady(replace(steady, hold_s=max(steady.hold_s, average_s)))
+            mean = acq.capture_point(f"alpha {math.degrees(alpha):+.1f} deg", average_s,
+                                     {"plan_index": len(points), "leg": "up", "plan_alpha_rad": float(alpha),
+                                      "fan": _fan_setting(acq), "by_hand": False}, window=clock.window(average_s))
+            point = SweepPoint(float(alpha), mean, None, acq.last_record)
+            points.append(point)
+            if on_point is not None:
+                on_point(point)
+    finally:
+        acq.pace(None)
     return points
 
 
@@ -169,12 +235,15 @@ def run_plan(acq: Acquisition, plan: SweepPlan, settle_s: float = 1.0, average_s
              timeout_s: float = 30.0, on_point: Callable[[SweepPoint], None] | None = None,
              stop: threading.Event | None = None, steady: SteadyCriteria | None = None,
              done: Sequence[Mapping] = (), spin_up_s: float = 4.0, operator: HandOperator | None = None,
-             safe_at_end: bool = True) -> list[SweepPoint]:
+             safe_at_end: bool = True, start_ns: int | None = None) -> list[SweepPoint]:
     """Take the points of ``plan`` after the records ``done`` (empty, or an interrupted sweep's), in order.
 
     Each point: set the fan when its setting changes (then wait ``spin_up_s``), set the angle (the servo, or
     ``operator`` for a sweep by hand), wait ``settle_s`` + ``average_s`` of device time, check for flow, wait
     for steady flow with ``steady``, capture ``average_s`` (recorded with the plan's fields, module docstring).
+
+    Timing is on device time (module docstring): the first command acts at device time ``start_ns`` (default:
+    ``DECISION_S`` after the newest scan), each wait and window follows from it.
 
     ``stop`` (set from another thread) ends the sweep before its next point; the operator may stop it too. When
     the plan is complete or stopped, and ``safe_at_end``, every actuator the plan drove goes back to its safe
@@ -190,35 +259,45 @@ def run_plan(acq: Acquisition, plan: SweepPlan, settle_s: float = 1.0, average_s
     acq.event("sweep plan", {"plan": plan.to_dict(), "settle_s": settle_s, "average_s": average_s,
                              "spin_up_s": spin_up_s, "resumed_after": len(records)})
     driven = set()
-    while (target := plan.next_point(records)) is not None:
-        if stop is not None and stop.is_set():
-            acq.event("sweep stopped", {"by": "operator", "points": len(records)})
-            break
-        acq.check_running()
-        if target.fan is not None and acq.setpoints[fan.name] != target.fan:
-            acq.set_actuator(fan.name, target.fan)
-            driven.add(fan.name)
-            wait_device_time(acq, spin_up_s, timeout_s + spin_up_s)
-        if target.alpha_rad is not None:
-            if plan.by_hand:
-                angle = operator.set_angle(target)
-                if angle is None:
-                    acq.event("sweep stopped", {"by": "operator", "points": len(records)})
-                    break
-                acq.set_angle_by_hand(angle)
-            else:
-                acq.set_actuator(servo.name, target.alpha_rad)
-                driven.add(servo.name)
-        wait_device_time(acq, settle_s + average_s, timeout_s)
-        acq.check_flow(average_s)  # points without flow would be numbers without meaning
-        if steady is not None:
-            wait_steady(acq, replace(steady, hold_s=max(steady.hold_s, average_s)), timeout_s)
-        mean = acq.capture_point(target.label(), average_s, point_record_keys(target))
-        records.append(acq.last_record)
-        point = SweepPoint(acq.alpha_rad, mean, target, acq.last_record)
-        points.append(point)
-        if on_point is not None:
-            on_point(point)
+    if start_ns is None:
+        clock = Timeline.begin(acq, timeout_s)
+        clock.wait_until(clock.cursor)
+    else:
+        clock = Timeline(acq, start_ns, timeout_s)
+    try:
+        while (target := plan.next_point(records)) is not None:
+            if stop is not None and stop.is_set():
+                acq.event("sweep stopped", {"by": "operator", "points": len(records)})
+                break
+            acq.check_running()
+            if target.fan is not None and acq.setpoints[fan.name] != target.fan:
+                clock.set(fan.name, target.fan)
+                driven.add(fan.name)
+                clock.wait(spin_up_s, timeout_s + spin_up_s)
+            if target.alpha_rad is not None:
+                if plan.by_hand:
+                    angle = operator.set_angle(target)
+                    if angle is None:
+                        acq.event("sweep stopped", {"by": "operator", "points": len(records)})
+                        break
+                    acq.set_angle_by_hand(angle)
+                    clock.after_operator()
+                else:
+                    clock.set(servo.name, target.alpha_rad)
+                    driven.add(servo.name)
+            clock.wait(settle_s + average_s)
+            acq.check_flow(average_s, clock.window(average_s))  # points without flow would be numbers without meaning
+            if steady is not None:
+                clock.steady(replace(steady, hold_s=max(steady.hold_s, average_s)))
+            mean = acq.capture_point(target.label(), average_s, point_record_keys(target),
+                                     window=clock.window(average_s))
+            records.append(acq.last_record)
+            point = SweepPoint(acq.alpha_rad, mean, target, acq.last_record)
+            points.append(point)
+            if on_point is not None:
+                on_point(point)
+    finally:
+        acq.pace(None)  # the board runs free again (a paced one waits for nobody now)
     if safe_at_end:
         for actuator in acq.rig.actuators:
             if actuator.name in driven:

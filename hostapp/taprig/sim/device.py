@@ -9,6 +9,13 @@ and frame order, so the bytes depend on the seed and the host's commands, never 
 
 Time: the board's own clock is its crystal, ``clock_ppm`` fast of true time; scans are scheduled and stamped on
 the board's clock. The watchdog, the scheduled resets, the disconnect and write stalls run on true time.
+
+The horizon (:meth:`SimulatedDevice.set_horizon`): a host that paces the board in its own device time (a sweep)
+names the board-clock time at which its next command acts. A ``START`` or a setpoint other than an actuator's
+safe value that arrives before then is acknowledged at once and acts at the horizon, so the board's response
+depends on the device times the host chose, not on when its bytes happened to arrive (in real time a wall-clock
+moment, in compressed time wherever the reader had got to). Safe values, ``STOP``, ``RESET`` and heartbeats act at
+once, and a safe value, a ``STOP``, the watchdog or a reboot drops what was waiting.
 """
 
 from __future__ import annotations
@@ -119,6 +126,11 @@ class SimulatedDevice:
         self.disconnected = False
         self.host_frames = 0
         self.commands: list[tuple[int, DeviceState, object]] = []
+        self._horizon_dev: float | None = None
+        #: Commands acknowledged and waiting for the horizon: (true time [ns], message), in arrival order.
+        self._deferred: list[tuple[float, object]] = []
+        #: Commands that arrived after the horizon they were meant for had passed (acted on arrival).
+        self.late_commands = 0
         self._boot()
 
     # -- what the driver uses ------------------------------------------------------------------------------
@@ -172,6 +184,21 @@ class SimulatedDevice:
             last = self._next_scan + plan.scans_per_frame - 1
             due = min(due, self._true_ns(self._scan_dev_ns(last)))
         return due
+
+    @property
+    def board_ns(self) -> int:
+        """The board's clock now [ns since its boot]: the clock the stream's scan times are on."""
+        return int(self._dev_ns(self._now))
+
+    def set_horizon(self, board_ns: float | None) -> None:
+        """Let a ``START`` or a non-safe setpoint that arrives from now on act at board-clock time ``board_ns``
+        [ns since boot] (module docstring); None: every command acts on arrival. Commands already waiting keep
+        their time."""
+        self._horizon_dev = None if board_ns is None else float(board_ns)
+
+    def horizon_true_ns(self) -> float | None:
+        """True time [ns since open] of the horizon, or None when there is none."""
+        return None if self._horizon_dev is None else self._true_ns(self._horizon_dev)
 
     def receive(self, data: bytes) -> None:
         """Take host bytes at the current simulated time and act on every complete command in them."""
@@ -229,6 +256,8 @@ class SimulatedDevice:
         self._safe = False
         self._watchdog_ns = _NEVER
         self._next_status_dev = 0
+        self._deferred = []
+        self._horizon_dev = None  # a horizon was on the clock of the board before the reboot
         for act in self.actuators.values():
             act.command(act.info.safe, self._now)
         self.faults.restart()
@@ -247,7 +276,38 @@ class SimulatedDevice:
             events.append((self._watchdog_ns + WATCHDOG_LATENCY_NS, self._trip_watchdog))
         if self._plan is not None:
             events.append((self._true_ns(self._next_status_dev), self._status))
+        if self._deferred:
+            events.append((self._deferred[0][0], self._act_deferred))
         return min(events, key=lambda e: e[0])
+
+    def _act_deferred(self) -> None:
+        """The waiting command whose time has come acts now (its reply went out when it arrived)."""
+        _, msg = self._deferred.pop(0)
+        if isinstance(msg, Start):
+            self._begin_stream(msg)
+        else:
+            self._move(self.actuators[msg.actuator_id], msg.value)
+
+    def _defer(self, msg) -> bool:
+        """Whether ``msg`` waits for the horizon (queued, in arrival order); late ones count and act now."""
+        if self._horizon_dev is None:
+            return False
+        at = self._true_ns(self._horizon_dev)
+        if at < self._now:
+            self.late_commands += 1
+            return False
+        self._deferred.append((at, msg))
+        return True
+
+    def _drop_deferred(self, what=None) -> None:
+        """Forget waiting commands: all, or those for actuator id ``what`` (an int), or waiting STARTs ("start")."""
+        if what is None:
+            self._deferred = []
+        elif what == "start":
+            self._deferred = [(t, m) for t, m in self._deferred if not isinstance(m, Start)]
+        else:
+            self._deferred = [(t, m) for t, m in self._deferred
+                              if isinstance(m, Start) or m.actuator_id != what]
 
     def _disconnect(self) -> None:
         self.disconnected = True
@@ -262,6 +322,7 @@ class SimulatedDevice:
 
     def _trip_watchdog(self) -> None:
         """PROTOCOL.md §4: actuators to safe, state 2, a STATUS and a LOG at level 30; streaming goes on."""
+        self._drop_deferred()  # nothing the host asked for before the trip may move later
         for act in self.actuators.values():
             act.command(act.info.safe, self._now)
         self._safe = True
@@ -286,6 +347,7 @@ class SimulatedDevice:
         if isinstance(msg, Start):
             self._start(msg)
         elif isinstance(msg, Stop):
+            self._drop_deferred("start")
             self._plan = None
             self._reply(msg.req, ReplyCode.OK)
         elif isinstance(msg, SetActuator):
@@ -310,11 +372,19 @@ class SimulatedDevice:
             low = self.description.rate_min_hz
             self._reply(msg.req, ReplyCode.OUT_OF_RANGE, f"rate must lie in [{low:g}, {top:g}] Hz")
             return
+        if self._defer(msg):
+            self._reply(msg.req, ReplyCode.OK)
+            return
+        self._reply(msg.req, ReplyCode.OK)
+        self._begin_stream(msg)
+
+    def _begin_stream(self, msg: Start) -> None:
+        """Start the stream of a checked ``START`` now."""
+        channels = mask_to_channels(msg.channel_mask)
         encodings = [self._encodings[c] for c in channels]
         self._plan = plan_stream(msg.rate_hz, channels, encodings, msg.scans_per_frame, MAX_FRAME)
         self._layout = make_layout(channels, encodings)
         self.faults.new_stream()
-        self._reply(msg.req, ReplyCode.OK)
         self._next_scan = 0
         self._first_dev = self._dev_ns(self._now)
         self._next_status_dev = self._first_dev + STATUS_PERIOD_NS
@@ -331,10 +401,22 @@ class SimulatedDevice:
         if not low <= value <= high:
             self._reply(msg.req, ReplyCode.OUT_OF_RANGE, f"{act.info.name} takes [{act.info.min:g}, {act.info.max:g}]")
             return
-        self._advance_idle_flow(self._now)
-        act.command(msg.value, self._now)
         self._safe = False
+        if value == np.float32(act.info.safe):  # a safe value acts at once, and cancels a move still waiting
+            self._drop_deferred(msg.actuator_id)
+        elif self._defer(msg):
+            self._reply(msg.req, ReplyCode.OK)
+            return
+        self._move(act, msg.value)
         self._reply(msg.req, ReplyCode.OK)
+
+    def _move(self, act, value: float) -> None:
+        """Give ``act`` its new setpoint now. While streaming, the stream's lag is stepped on the scan grid
+        only (:meth:`_scan_counts`), so when a command arrives between two scans changes nothing but the
+        actuator's own start time; while idle, the flow is brought up to now first."""
+        if self._plan is None:
+            self._advance_idle_flow(self._now)
+        act.command(value, self._now)
 
     # -- sending ----------------------------------------------------------------------------------------------
     def _queue(self, data: bytes) -> None:

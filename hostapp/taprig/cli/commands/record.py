@@ -26,11 +26,13 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
-def open_run(args, port: str, default_dir: str, stem: str | None = None, rig=None, record: bool = True):
+def open_run(args, port: str, default_dir: str, stem: str | None = None, rig=None, record: bool = True,
+             paced: bool = False):
     """Build and open an acquisition from the common options: returns (acquisition, output path).
 
     ``rig`` is the already loaded ``--rig`` when the caller needed it first (it is parsed only once). With
-    ``record=False`` nothing is recorded yet (the path is None): recording can start later on demand.
+    ``record=False`` nothing is recorded yet (the path is None): recording can start later on demand. ``paced``: a
+    run timed in device time (a sweep; :meth:`taprig.runtime.acquisition.Acquisition.open`).
     """
     from taprig.cli.runopts import ambient_arg, build_reducer, load_calibration_arg, load_rig_arg, new_output_path
     from taprig.link import Link
@@ -47,7 +49,7 @@ def open_run(args, port: str, default_dir: str, stem: str | None = None, rig=Non
     link = Link(url, baudrate=rig.link.baud, keep_dtr_rts=not rig.link.touch_control_lines)
     acquisition = Acquisition(link, rig, reducer, writer)
     try:
-        acquisition.open(args.rate)
+        acquisition.open(args.rate, paced=paced)
     except AcquisitionError as exc:
         if writer is not None:
             writer.close()

@@ -275,7 +275,7 @@ def sweep(args, port: str, stem: str | None = None, linger: bool = False) -> int
         args.settle, args.average, args.spin_up = resumed.settle_s, resumed.average_s, resumed.spin_up_s
     command = getattr(args, "command", None) or "sweep"
     with RunEnding() as ending:
-        acq, out = open_run(args, port, "sessions", stem=stem, rig=rig)
+        acq, out = open_run(args, port, "sessions", stem=stem, rig=rig, paced=True)
         ending.attach(acq)
         run = _SweepRun(args, acq, plan, linger, resumed)
         # the operator confirmed at the terminal (or with --yes) that the rig may move
@@ -426,19 +426,21 @@ class _SweepRun:
         from taprig.reduce.steady import SteadyCriteria
         from taprig.runtime.acquisition import AcquisitionError
         from taprig.runtime.plan import PlanError
-        from taprig.runtime.sweep import run_plan, wait_device_time
+        from taprig.runtime.sweep import Timeline, run_plan
 
         args, acq = self.args, self.acq
         try:
-            wait_device_time(acq, 1.0, 20)
+            clock = Timeline.begin(acq, 20)  # device time: the same scans in real and in compressed time
+            clock.wait(1.0)
             if not args.no_zero:
-                acq.zero(min(1.0, args.average))
+                acq.zero(min(1.0, args.average), window=clock.window(min(1.0, args.average)))
                 emit("wind-off zero taken")
             self._carry()
             emit(f"\n{header(acq.rig)}")
             operator = TerminalOperator(acq) if self.plan.by_hand else None
             run_plan(acq, self.plan, settle_s=args.settle, average_s=args.average, on_point=self.on_point,
-                     steady=SteadyCriteria(), done=list(self.records), spin_up_s=args.spin_up, operator=operator)
+                     steady=SteadyCriteria(), done=list(self.records), spin_up_s=args.spin_up, operator=operator,
+                     start_ns=clock.cursor)
         except (AcquisitionError, PlanError) as exc:
             self.failure = str(exc)
             return

@@ -10,6 +10,11 @@ open USB serial port to a board running the taprig protocol. Options are query p
 Reads hand out everything queued, up to the size asked for, in whole chunks (never a byte at a time). Time
 follows the wall clock scaled by ``speed``; with ``speed=max`` the simulated clock runs only as fast as the reader
 takes data (compressed time): a read that finds nothing queued advances the board to its next frame at once.
+
+A host that paces the board in device time (a sweep) sets a horizon (:meth:`Serial.set_horizon`): its next
+commands act at that board-clock time (:mod:`taprig.sim.device`), and in compressed time the board's clock stops
+there until the horizon is moved on, so the reader cannot run the board past the moment the host is deciding
+about. The same seed and horizons then give the same scans in real and in compressed time.
 """
 
 from __future__ import annotations
@@ -76,16 +81,41 @@ class Serial(SerialBase):
         return self._speed == float("inf")
 
     def _catch_up(self) -> None:
-        """Advance the board to now (paced modes) or to its next output if nothing is queued (compressed)."""
+        """Advance the board to now (paced modes) or to its next output if nothing is queued (compressed; never
+        past the horizon)."""
         device = self.device
         if not self.compressed:
             device.produce_until(max(device.now_ns, self._wall_sim_ns()))
             return
-        if device.pending:
+        if device.pending or self._held():
             return
         due = device.next_due_ns()
         if due - device.now_ns <= IDLE_HORIZON_NS:
-            device.produce_until(int(max(due, device.now_ns + COMPRESSED_STEP_NS)))
+            target = max(due, device.now_ns + COMPRESSED_STEP_NS)
+            cap = device.horizon_true_ns()
+            device.produce_until(int(target if cap is None else min(target, cap)))
+
+    def _held(self) -> bool:
+        """True in compressed time when the board's clock has reached the horizon and waits for the host."""
+        cap = self.device.horizon_true_ns()
+        return self.compressed and cap is not None and self.device.now_ns >= cap
+
+    def board_time_ns(self) -> int:
+        """The board's clock now [ns since its boot], the clock of the stream's scan times (real time: brought up
+        to the wall clock first)."""
+        with self._lock:
+            self._check_alive()
+            if not self.compressed:
+                self.device.produce_until(max(self.device.now_ns, self._wall_sim_ns()))
+            return self.device.board_ns
+
+    def set_horizon(self, board_ns: float | None) -> None:
+        """Commands written from now on act at board-clock time ``board_ns`` [ns since boot] (None: on arrival);
+        in compressed time the board's clock runs no further than that until the horizon moves."""
+        with self._lock:
+            self._check_alive()
+            self.device.set_horizon(board_ns)
+            self._lock.notify_all()
 
     def _check_alive(self) -> None:
         if not self.is_open:
@@ -124,7 +154,7 @@ class Serial(SerialBase):
             return False
         if self.device.disconnected:
             return True  # the next turn raises
-        if self.compressed and self.device.next_due_ns() - self.device.now_ns <= IDLE_HORIZON_NS:
+        if self.compressed and not self._held() and self.device.next_due_ns() - self.device.now_ns <= IDLE_HORIZON_NS:
             return True  # the board has more to send at once: no waiting in compressed time
         wait = MAX_WAIT_S
         if not self.compressed:
