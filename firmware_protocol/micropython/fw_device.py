@@ -7,7 +7,9 @@ device runs under CPython against `hw_fake` with a fake clock.
 
 from fw_stream import Streamer
 from fw_wire import (
+    ALLOW_MOVES,
     BAD_ARGUMENT,
+    BUSY,
     COMMAND_LAYOUT,
     DESCRIBE,
     DESCRIPTION,
@@ -46,11 +48,15 @@ _READ_CHUNK = 256
 
 
 class Device:
-    """One board speaking protocol 1.0.
+    """One board speaking protocol 1.1.
 
     ``settings`` is a dict with ``rate_min_hz``, ``rate_max_hz``, ``max_frame`` and ``heartbeat_timeout_ms``;
     ``channels`` and ``actuators`` are driver objects (see fw_drivers). The device powers up safe: every actuator
     at its safe value, state 2, until the host's first accepted SET_ACTUATOR.
+
+    A watchdog trip also starts the *safe hold* (PROTOCOL.md §4, 1.1): ``held`` is True and a SET_ACTUATOR to
+    anything but the actuator's safe value is refused with BUSY, moving nothing, until ALLOW_MOVES. So a move the
+    host decided before it froze, arriving after the trip, cannot take the rig out of its safe state.
 
     Well-formed frames of the device → host types (0x01–0x7F) that arrive are skipped, counted and reported in a
     LOG: they are an echo, not the host, so they get no reply and do not feed the watchdog. Every other unknown
@@ -75,6 +81,7 @@ class Device:
         self._seq = 0
         self._boot_pending = True
         self.running = True
+        self.held = False
         self.make_safe()
         now = hw.now_us()
         self._last_host_us = now
@@ -127,6 +134,9 @@ class Device:
     def step(self):
         """One pass of the main loop; returns True when it did any work."""
         busy = False
+        # The watchdog looks before the port is read: a host frame that waited in the port while the loop was away
+        # past the deadline must find the board already safe and held (PROTOCOL.md §4), not stop the watchdog.
+        self._check_watchdog()
         data = self._hw.read_serial(_READ_CHUNK)
         if data:
             busy = True
@@ -139,9 +149,8 @@ class Device:
                 self._last_host_us = self._hw.now_us()
                 self._handle(frame)
         self._streamer.service()
+        self._check_watchdog()
         now = self._hw.now_us()
-        if not self.safe and now - self._last_host_us >= self._timeout_us:
-            self._trip_watchdog()
         if now >= self._next_housekeeping_us:
             self._next_housekeeping_us = now + _HOUSEKEEPING_US
             self._housekeeping()
@@ -175,8 +184,13 @@ class Device:
         self._send(STATUS, status_body(hw.supply_mv(), hw.board_temp_cc(), hw.now_us() // 1000,
                                        streamer.overruns, streamer.dropped_scans, self.state))
 
+    def _check_watchdog(self):
+        if not self.safe and self._hw.now_us() - self._last_host_us >= self._timeout_us:
+            self._trip_watchdog()
+
     def _trip_watchdog(self):
         self.make_safe()
+        self.held = True
         self.send_status()
         self._log(LOG_WARNING, "no host frame for %d ms: actuators at safe values" % (self._timeout_us // 1000))
 
@@ -221,6 +235,9 @@ class Device:
         elif msg_type == DESCRIBE:
             self._send(DESCRIPTION, description_body(self._info, self._channels, self._actuators))
             self._reply(req, OK)
+        elif msg_type == ALLOW_MOVES:
+            self.held = False  # moves nothing: the actuators stay at their safe values until set
+            self._reply(req, OK)
         elif msg_type == RESET:
             self._streamer.stop()
             self.make_safe()
@@ -252,11 +269,17 @@ class Device:
         if not act.in_range(value):
             self._reply(req, OUT_OF_RANGE, "%s: %s %s outside [%s, %s]" % (act.name, value, act.unit, act.min, act.max))
             return
+        moves = value != f32(act.safe)  # the value crossed the wire as f32, and so did safe in DESCRIPTION
+        if self.held and moves:
+            self._reply(req, BUSY, "safe hold after a watchdog trip: %s stays at %s %s until ALLOW_MOVES"
+                        % (act.name, f32(act.safe), act.unit))
+            return
         try:
             act.apply(value)
         except OSError as err:
             self._reply(req, HARDWARE_FAULT, "%s: %s" % (act.name, err))
             return
-        self.safe = False
+        if not self.held:  # a safe value sent in the hold is taken, and the hold goes on
+            self.safe = False
         self._reply(req, OK)
 

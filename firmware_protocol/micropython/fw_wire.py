@@ -1,4 +1,4 @@
-"""Frames and message bodies of taprig wire protocol 1.0, device side (PROTOCOL.md is the contract).
+"""Frames and message bodies of taprig wire protocol 1.1, device side (PROTOCOL.md is the contract).
 
 Builds every device → host frame, parses every host → device command, and cuts an incoming byte stream into
 well-formed frames (`FrameReader`), skipping garbage and counting it. Plain MicroPython-compatible Python.
@@ -17,7 +17,7 @@ except ImportError:  # CPython
 
 
 PROTO_MAJOR = const(1)
-PROTO_MINOR = const(0)
+PROTO_MINOR = const(1)
 
 # Message types (PROTOCOL.md §3).
 DESCRIPTION = const(0x01)
@@ -31,6 +31,7 @@ SET_ACTUATOR = const(0x83)
 HEARTBEAT = const(0x84)
 DESCRIBE = const(0x85)
 RESET = const(0x86)
+ALLOW_MOVES = const(0x87)
 
 FLAG_BOOT = const(1)
 
@@ -87,6 +88,7 @@ COMMAND_LAYOUT = {
     HEARTBEAT: ("<H", 2, "HEARTBEAT"),
     DESCRIBE: ("<H", 2, "DESCRIBE"),
     RESET: ("<H", 2, "RESET"),
+    ALLOW_MOVES: ("<H", 2, "ALLOW_MOVES"),
 }
 
 
@@ -125,9 +127,10 @@ def encode_frame(msg_type, seq, body, flags=0):
 
 def description_body(info, channels, actuators):
     """DESCRIPTION body from ``info`` (a dict: firmware, uid, rate_min_hz, rate_max_hz, max_frame,
-    heartbeat_timeout_ms) and the channel / actuator driver lists (each with the attributes PROTOCOL.md lists)."""
+    heartbeat_timeout_ms; optionally proto_major and proto_minor, which default to this firmware's 1.1) and the
+    channel / actuator driver lists (each with the attributes PROTOCOL.md lists)."""
     parts = [
-        struct.pack("<BB", PROTO_MAJOR, PROTO_MINOR),
+        struct.pack("<BB", info.get("proto_major", PROTO_MAJOR), info.get("proto_minor", PROTO_MINOR)),
         str8(info["firmware"]),
         str8(info["uid"]),
         struct.pack(

@@ -22,7 +22,8 @@ FORMAT = 2
 COUNTERS = ("frames", "bytes", "framing_errors", "crc_errors", "oversize", "unknown_types", "gaps", "frames_lost",
             "scans_lost", "duplicates", "late", "resets", "undecodable")
 TYPE_NAMES = {0x01: "DESCRIPTION", 0x02: "SAMPLES", 0x03: "STATUS", 0x04: "REPLY", 0x05: "LOG", 0x81: "START",
-              0x82: "STOP", 0x83: "SET_ACTUATOR", 0x84: "HEARTBEAT", 0x85: "DESCRIBE", 0x86: "RESET"}
+              0x82: "STOP", 0x83: "SET_ACTUATOR", 0x84: "HEARTBEAT", 0x85: "DESCRIBE", 0x86: "RESET",
+              0x87: "ALLOW_MOVES"}
 BOOT = 1
 # struct codes of the channel encodings of §3: 1 i16, 2 u16, 3 i32, 4 u32, 5 f32
 ENCODING_CODES = {1: "h", 2: "H", 3: "i", 4: "I", 5: "f"}
@@ -83,8 +84,8 @@ def str8(text: str) -> bytes:
 
 
 def description(channels, actuators, firmware="taprig-ref 0.1.0", uid="e6614103e7452d2f",
-                rate_min_hz=1.0, rate_max_hz=2000.0, max_frame=4096, heartbeat_timeout_ms=1000):
-    body = bytes((1, 0)) + str8(firmware) + str8(uid)
+                rate_min_hz=1.0, rate_max_hz=2000.0, max_frame=4096, heartbeat_timeout_ms=1000, proto_minor=1):
+    body = bytes((1, proto_minor)) + str8(firmware) + str8(uid)
     body += struct.pack("<ffHHB", rate_min_hz, rate_max_hz, max_frame, heartbeat_timeout_ms, len(channels))
     for name, encoding in channels:
         body += bytes((encoding,)) + str8(name)
@@ -92,7 +93,7 @@ def description(channels, actuators, firmware="taprig-ref 0.1.0", uid="e6614103e
     for act_id, kind, lo, hi, safe, unit, name in actuators:
         body += struct.pack("<BBfff", act_id, kind, lo, hi, safe) + str8(unit) + str8(name)
     fields = {
-        "proto_major": 1, "proto_minor": 0, "firmware": firmware, "uid": uid, "rate_min_hz": rate_min_hz,
+        "proto_major": 1, "proto_minor": proto_minor, "firmware": firmware, "uid": uid, "rate_min_hz": rate_min_hz,
         "rate_max_hz": rate_max_hz, "max_frame": max_frame, "heartbeat_timeout_ms": heartbeat_timeout_ms,
         "channels": [{"name": n, "encoding": e} for n, e in channels],
         "actuators": [{"id": a[0], "kind": a[1], "min": a[2], "max": a[3], "safe": a[4], "unit": a[5],
@@ -217,6 +218,7 @@ def message_cases() -> list[dict]:
         Case("heartbeat", "HEARTBEAT").send(req_only(0x84, 0), 5).done(frames=1),
         Case("describe", "DESCRIBE").send(req_only(0x85, 1), 0).done(frames=1),
         Case("reset", "RESET").send(req_only(0x86, 9), 6).done(frames=1),
+        Case("allow_moves", "ALLOW_MOVES (protocol 1.1)").send(req_only(0x87, 0x0102), 7).done(frames=1),
     ]
     return cases
 
@@ -437,12 +439,28 @@ def decision_cases() -> list[dict]:
     boot.send(DESC8, 0, BOOT).send(samples(7_000_000, 1_000_000, 0, 1, [(1,), (2,)], 7_000_000_000, 0), 1)
     boot.send(log(30, "reset by brown-out"), 0, BOOT).send(DESC8, 1)
     boot.send(samples(900, 1_000_000, 0, 1, [(3,), (4,)], 900_000, 0), 2)
+    # §2, §4 (protocol 1.1): after a watchdog trip the device holds its safe state; it refuses a SET_ACTUATOR that
+    # would move an actuator away from its safe value with BUSY (a code a 1.0 host already reads) until the host
+    # sends ALLOW_MOVES (0x87, a new host → device type: a minor addition); a host learns whether a board has the
+    # hold from proto_minor in its DESCRIPTION (a 1.0 board has not)
+    held = Case("safe_hold_refusal", "at a device: SET_ACTUATOR fan 0.5 (refused with BUSY while in the safe hold), "
+                "ALLOW_MOVES (req 8), SET_ACTUATOR fan 0.5 again", receiver="device")
+    held.send(set_actuator(7, 1, 0.5), 20).send(req_only(0x87, 8), 21).send(set_actuator(9, 1, 0.5), 22)
+    busy = Case("reply_busy_safe_hold", "at a host: REPLY BUSY to a SET_ACTUATOR refused in the safe hold, then REPLY "
+                "OK to ALLOW_MOVES")
+    busy.send(reply(7, 5, "safe hold after a watchdog trip: ALLOW_MOVES first"), 40).send(reply(8, 0), 41)
+    old = Case("description_protocol_1_0", "DESCRIPTION of a protocol 1.0 board (proto_minor 0): no safe hold, no "
+               "ALLOW_MOVES; a 1.1 host keeps its own guard and does not send ALLOW_MOVES to it")
+    old.send(description([("p", 2)], [ACTUATORS2[0]], proto_minor=0), 0, BOOT)
     return [
         late.done(frames=5, resets=1, gaps=1, frames_lost=1, late=1, scans_lost=4),
         wrap.done(frames=4, resets=1),
         unknown.done(frames=4, resets=1, undecodable=1),
         echo.done(frames=3, unknown_types=1),
         boot.done(frames=5, resets=2),
+        held.done(frames=3),
+        busy.done(frames=2),
+        old.done(frames=1, resets=1),
     ]
 
 
@@ -502,7 +520,7 @@ def build() -> dict:
              + decision_cases())
     names = [c["name"] for c in cases]
     assert len(names) == len(set(names)), "case names must be unique"
-    return {"format": FORMAT, "protocol": "1.0", "counters": list(COUNTERS), "cases": cases}
+    return {"format": FORMAT, "protocol": "1.1", "counters": list(COUNTERS), "cases": cases}
 
 
 def main(argv: list[str]) -> int:

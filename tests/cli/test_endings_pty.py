@@ -121,10 +121,11 @@ def safe_values() -> dict[int, float]:
 
 
 def moves_after(received: list[dict], index: int) -> list[dict]:
-    """Commands after ``index`` that set an actuator to anything but its safe value."""
+    """Commands after ``index`` that set an actuator to anything but its safe value and that the board took (one it
+    refused in its safe hold after a watchdog trip, PROTOCOL.md §4, moved nothing)."""
     safe = safe_values()
     return [c for c in received[index + 1:] if c.get("command") == "SetActuator"
-            and abs(c["value"] - safe[c["actuator_id"]]) > 1e-6]
+            and abs(c["value"] - safe[c["actuator_id"]]) > 1e-6 and c.get("reply") != "BUSY"]
 
 
 def assert_ends_with_safe_values(received: list[dict]) -> None:

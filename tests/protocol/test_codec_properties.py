@@ -10,6 +10,7 @@ from hypothesis import strategies as st
 from taprig.protocol import (
     ActuatorInfo,
     ActuatorKind,
+    AllowMoves,
     ChannelInfo,
     Describe,
     Description,
@@ -56,7 +57,7 @@ plain_messages = st.one_of(
     st.builds(Log, level=u8, text=st.text(max_size=300)),
     st.builds(Start, req=u16, rate_hz=f32, channel_mask=st.integers(0, 2**64 - 1), scans_per_frame=u16),
     st.builds(SetActuator, req=u16, actuator_id=u8, value=f32),
-    *(st.builds(kind, req=u16) for kind in (Stop, Heartbeat, Describe, Reset)),
+    *(st.builds(kind, req=u16) for kind in (Stop, Heartbeat, Describe, Reset, AllowMoves)),
 )
 
 
@@ -97,7 +98,7 @@ def test_every_plain_message_round_trips(msg, seq, flags):
 @given(plain_messages, u32)
 def test_each_end_interprets_only_the_other_ends_types(msg, seq):
     # PROTOCOL.md §1: a frame of a receiver's own direction is skipped and counted as an unknown type
-    command = isinstance(msg, (Start, Stop, SetActuator, Heartbeat, Describe, Reset))
+    command = isinstance(msg, (Start, Stop, SetActuator, Heartbeat, Describe, Reset, AllowMoves))
     wire = encode_message(msg, seq)
     for receiver, interprets in (("host", not command), ("device", command)):
         decoder = StreamDecoder(receiver=receiver)

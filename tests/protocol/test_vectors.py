@@ -13,6 +13,7 @@ import pytest
 
 from taprig.protocol import (
     ActuatorInfo,
+    AllowMoves,
     ChannelInfo,
     Describe,
     Description,
@@ -36,7 +37,7 @@ VECTORS = Path(__file__).resolve().parents[2] / "firmware_protocol" / "vectors"
 DOC = json.loads((VECTORS / "vectors.json").read_text(encoding="utf-8"))
 CASES = {case["name"]: case for case in DOC["cases"]}
 PLAIN = {"STATUS": Status, "REPLY": Reply, "LOG": Log, "START": Start, "STOP": Stop, "SET_ACTUATOR": SetActuator,
-         "HEARTBEAT": Heartbeat, "DESCRIBE": Describe, "RESET": Reset}
+         "HEARTBEAT": Heartbeat, "DESCRIBE": Describe, "RESET": Reset, "ALLOW_MOVES": AllowMoves}
 
 
 def _pieces(case: dict) -> list[bytes]:
@@ -81,7 +82,7 @@ def test_vectors_file_is_current():
 def test_vectors_cover_the_required_cases():
     types = {frame["type"] for case in DOC["cases"] for frame in case["frames"]}
     assert types == {"DESCRIPTION", "SAMPLES", "STATUS", "REPLY", "LOG", "START", "STOP", "SET_ACTUATOR",
-                     "HEARTBEAT", "DESCRIBE", "RESET"}
+                     "HEARTBEAT", "DESCRIBE", "RESET", "ALLOW_MOVES"}
     for counter in DOC["counters"]:
         if counter not in ("frames", "bytes"):
             assert any(case["counters"][counter] for case in DOC["cases"]), f"no case exercises {counter}"

@@ -7,6 +7,7 @@ safe values, keeps the points it took, and says the true cause; every ending lea
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import threading
 from pathlib import Path
@@ -15,7 +16,7 @@ import numpy as np
 import pytest
 
 from taprig.link import Link
-from taprig.protocol import ActuatorKind, DeviceState, SetActuator, Stop
+from taprig.protocol import ActuatorKind, DeviceState, ReplyCode, SetActuator, Stop
 from taprig.reduce import Reducer
 from taprig.rig import load_rig
 from taprig.runtime.acquisition import Acquisition, AcquisitionError, session_meta
@@ -163,3 +164,70 @@ def test_a_dead_link_is_said_plainly(tmp_path):
         assert word not in text and word not in str(caught.value)
     shutdown = [e for e in events(tmp_path) if e.kind == "shutdown"][0].data
     assert shutdown["link_up"] is False and "lost" in shutdown["halt_reason"]
+
+
+def test_a_setpoint_that_reaches_the_board_after_its_trip_is_refused_and_the_run_halts_with_the_cause(
+        tmp_path, monkeypatch):
+    # The race the board's safe hold closes (PROTOCOL.md §4): the host froze between its last look at its quiet
+    # time and the write, so neither its own check nor the trip's STATUS/LOG (not read yet) stops the setpoint.
+    # Played deterministically: the host's two views of the trip are switched off, the board trips, then the
+    # setpoint goes out. The board refuses it (BUSY), nothing moves, and the run halts saying why.
+    acq = start(tmp_path, "seed=2&speed=1&watchdog_ms=400")
+    try:
+        acq.set_actuator("fan", 0.6)
+        monkeypatch.setattr(acq, "_watch_safety", lambda items, host_ns: None)  # the trip's news not read yet
+        monkeypatch.setattr(acq, "_check_host_stall", lambda: None)  # frozen after the host's own look
+        done = threading.Event()
+        while not acq.board.held:
+            done.wait(0.02)
+        assert not acq.halted.is_set()
+        fan = acq.rig.actuator_of_kind(ActuatorKind.FAN)
+        with pytest.raises(AcquisitionError, match="watchdog tripped.*refused fan 0.8 and nothing moved"):
+            acq.set_actuator("fan", 0.8)
+        assert acq.halted.is_set() and "operator" in acq.halt_reason
+        assert acq.board.actuators[fan.id].setpoint == fan.to_device(fan.safe)
+        refused = [(m, acq.board.command_codes[i]) for i, (_, _, m) in enumerate(acq.board.commands)
+                   if isinstance(m, SetActuator) and m.value == pytest.approx(0.8)]
+        assert [code for _, code in refused] == [ReplyCode.BUSY]
+        with pytest.raises(AcquisitionError, match="watchdog tripped"):
+            acq.set_actuator("fan", 0.8)  # halted: not even sent
+        acq.clear_halt()  # the operator checked the rig and resumes: ALLOW_MOVES, then moves are taken again
+        assert not acq.board.held
+        acq.set_actuator("fan", 0.5)
+        assert acq.board.actuators[fan.id].setpoint == pytest.approx(0.5)
+    finally:
+        report = acq.close()
+    assert all(o.acknowledged for o in report.actuators)
+    sent = [type(m).__name__ for _, _, m in acq.board.commands]
+    assert sent.count("AllowMoves") == 2  # one at the start of the run, one on the operator's resume
+    assert sent.index("AllowMoves", 1) > max(i for i, (_, _, m) in enumerate(acq.board.commands)
+                                              if isinstance(m, SetActuator) and m.value == pytest.approx(0.8))
+    kinds = [e.kind for e in events(tmp_path)]
+    assert kinds.index("halt") < kinds.index("allow_moves") < kinds.index("halt_cleared")
+    refused_events = [e for e in events(tmp_path) if e.kind == "setpoint" and e.data.get("refused")]
+    assert refused_events and refused_events[0].data["value"] == pytest.approx(0.6)  # back to what it was
+
+
+def test_a_board_of_protocol_1_0_is_sent_no_allow_moves_and_the_operator_is_told(tmp_path, monkeypatch):
+    # PROTOCOL.md §2, §4: a 1.0 board has no safe hold and knows no ALLOW_MOVES; the host keeps its own check and
+    # says the board cannot refuse a stale move after a trip.
+    import taprig.sim.device as sim_device
+
+    real = sim_device.build_description
+    monkeypatch.setattr(sim_device, "build_description",
+                        lambda rig, options: dataclasses.replace(real(rig, options), proto_minor=0))
+    acq = start(tmp_path, "seed=4&speed=max&watchdog_ms=0")
+    try:
+        assert not acq.link.board_holds_safe
+        (notice,) = acq.notices
+        assert "protocol 1.0" in notice and "update the firmware" in notice
+        acq.set_actuator("fan", 0.5)
+        press_reset(acq)
+        with pytest.raises(AcquisitionError, match="restarted"):
+            wait_device_time(acq, 5.0, timeout_s=30)
+        acq.clear_halt()
+        acq.set_actuator("fan", 0.5)
+    finally:
+        acq.close()
+    assert not any(type(m).__name__ == "AllowMoves" for _, _, m in acq.board.commands)
+    assert "board without safe hold" in [e.kind for e in events(tmp_path)]

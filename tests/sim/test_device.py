@@ -9,6 +9,7 @@ from hypothesis import strategies as st
 
 from taprig.protocol import (
     FLAG_BOOT,
+    AllowMoves,
     Describe,
     Description,
     DeviceState,
@@ -125,9 +126,53 @@ def test_watchdog_brings_the_fan_to_safe_and_keeps_streaming(host):
     assert tripped_at - quiet_from <= 400e6 + 50e6
     h.step(3.0, chunk_s=0.1)
     assert h.device.stream_speed < 0.2 * speed_before  # the fan runs down
+    assert h.device.state == DeviceState.SAFE and h.device.held
+    h.send(SetActuator(9, 0, 0.3))  # PROTOCOL.md §4 (1.1): the safe hold refuses a move until ALLOW_MOVES
+    h.step(0.01)
+    assert h.replies()[-1].req == 9 and h.replies()[-1].code == ReplyCode.BUSY
+    assert h.device.state == DeviceState.SAFE and h.device.actuators[0].setpoint == 0.0
+    h.send(AllowMoves(10))
+    assert h.device.state == DeviceState.SAFE and h.device.actuators[0].setpoint == 0.0  # moves nothing itself
+    h.send(SetActuator(11, 0, 0.3))
+    h.step(0.01)
+    assert [(r.req, r.code) for r in h.replies()[-2:]] == [(10, ReplyCode.OK), (11, ReplyCode.OK)]
+    assert h.device.state == DeviceState.STREAMING  # leaves state 2 on the next SET_ACTUATOR after ALLOW_MOVES
+
+
+def test_a_move_that_arrives_after_the_trip_is_refused_and_nothing_moves(host):
+    # The race the safe hold closes (PROTOCOL.md §4): the host decided a move and froze past the watchdog time;
+    # the move reaches the board after it tripped. It is refused with BUSY and no actuator leaves its safe value.
+    h = host("naca0012-20tap", base=SimOptions(seed=5), watchdog_ms=300, fan_rate=0.0, fan_tau=0.0,
+             angle_rate_deg=0.0)
+    h.send(SetActuator(1, 0, 0.7), SetActuator(2, 1, 6.0))
+    h.step(0.5, chunk_s=0.01)  # frozen host: nothing sent for longer than the watchdog time
     assert h.device.state == DeviceState.SAFE
-    h.send(SetActuator(9, 0, 0.3))
-    assert h.device.state == DeviceState.STREAMING  # leaves state 2 on the next SET_ACTUATOR
+    safe = {act_id: act.info.safe for act_id, act in h.device.actuators.items()}
+    trip_ns = h.device.now_ns
+    h.send(SetActuator(3, 0, 0.9), SetActuator(4, 1, 8.0))  # the stale moves, late
+    h.step(0.5, chunk_s=0.01)
+    assert [(r.req, r.code) for r in h.replies()[-2:]] == [(3, ReplyCode.BUSY), (4, ReplyCode.BUSY)]
+    t = np.array([trip_ns, h.device.now_ns])
+    for act_id, act in h.device.actuators.items():
+        assert act.setpoint == safe[act_id]
+        assert np.all(act.position_at(t) == safe[act_id])
+    codes = [h.device.command_codes[i] for i, (_, _, m) in enumerate(h.device.commands) if m.req in (3, 4)]
+    assert codes == [ReplyCode.BUSY, ReplyCode.BUSY]  # what the command log reports
+
+
+def test_safe_values_are_taken_in_the_hold_and_power_up_is_not_held(host):
+    h = host("naca0012-20tap", base=SimOptions(seed=5), watchdog_ms=300)
+    assert not h.device.held  # power-up is safe but not held: a 1.0 host's first move still works
+    h.send(SetActuator(1, 0, 0.7))
+    h.step(0.5, chunk_s=0.01)
+    assert h.device.held
+    h.send(*(SetActuator(10 + i, act_id, act.info.safe) for i, (act_id, act) in enumerate(h.device.actuators.items())))
+    h.step(0.01)
+    assert all(r.code == ReplyCode.OK for r in h.replies()[-len(h.device.actuators):])
+    assert h.device.held and h.device.state == DeviceState.SAFE
+    h.send(Reset(30))
+    h.step(0.01)
+    assert not h.device.held
 
 
 def test_reset_replies_then_reboots_with_sequence_zero(host):

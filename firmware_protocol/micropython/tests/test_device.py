@@ -7,6 +7,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from taprig.protocol import (
+    AllowMoves,
     Describe,
     Description,
     DeviceState,
@@ -45,7 +46,7 @@ def test_boot_sends_description_with_boot_flag_and_seq_zero(bench):
     counters = bench.decoder.counters
     assert counters.resets == 1 and counters.framing_errors == 0  # BOOT flag seen (PROTOCOL.md §5 resets)
     desc = out[0]
-    assert (desc.proto_major, desc.proto_minor, desc.firmware, desc.uid) == (1, 0, FIRMWARE, bench.hw.uid())
+    assert (desc.proto_major, desc.proto_minor, desc.firmware, desc.uid) == (1, 1, FIRMWARE, bench.hw.uid())
     assert [(c.name, int(c.encoding)) for c in desc.channels] == [
         (entry["name"], {"analog": 2, "i2c_bridge14": 2, "bridge24": 3}[entry["kind"]])
         for entry in board_config.CHANNELS]
@@ -156,7 +157,7 @@ def test_short_bodies_get_malformed(bench, msg_type, body, req):
     assert (reply.req, reply.code) == (req, ReplyCode.MALFORMED)
 
 
-@pytest.mark.parametrize("msg_type", [0x87, 0xFF, 0x80, 0x00])
+@pytest.mark.parametrize("msg_type", [0x88, 0xFF, 0x80, 0x00])
 def test_unknown_host_types_get_unknown_command_with_req_zero(bench, msg_type):
     bench.hw.host_send(encode_frame(msg_type, 0, b"\x05\x00\x01\x02\x03"))
     bench.device.step()
@@ -258,16 +259,72 @@ def test_watchdog_trips_within_50_ms_after_the_timeout(bench):
     assert out.index(status[0]) < out.index(logs[0])
 
 
-def test_heartbeats_keep_the_watchdog_fed_and_set_actuator_leaves_safe(bench):
+def test_heartbeats_keep_the_watchdog_fed_and_only_allow_moves_ends_the_safe_hold(bench):
     bench.command(SetActuator(req=1, actuator_id=1, value=0.3))
     for req in range(2, 14):  # 12 × 250 ms, the host's pace (PROTOCOL.md §4: at least every timeout / 4)
         bench.run(250_000, step_us=1000)
         bench.command(Heartbeat(req=req))
     assert bench.device.state == DeviceState.IDLE
     bench.run(TIMEOUT_US + 50_000, step_us=1000)
-    assert bench.device.state == DeviceState.SAFE
-    assert reply_of(bench.command(SetActuator(req=20, actuator_id=1, value=0.2))).code == ReplyCode.OK
+    assert bench.device.state == DeviceState.SAFE and bench.device.held
+    refused = reply_of(bench.command(SetActuator(req=20, actuator_id=1, value=0.2)))
+    assert (refused.req, refused.code) == (20, ReplyCode.BUSY) and "ALLOW_MOVES" in refused.detail
+    assert bench.device.state == DeviceState.SAFE and bench.hw.pwms[16].duty == 0  # nothing moved
+    assert reply_of(bench.command(AllowMoves(req=21))).code == ReplyCode.OK
+    assert bench.device.state == DeviceState.SAFE and bench.hw.pwms[16].duty == 0  # ALLOW_MOVES moves nothing
+    assert reply_of(bench.command(SetActuator(req=22, actuator_id=1, value=0.2))).code == ReplyCode.OK
     assert bench.device.state == DeviceState.IDLE and bench.hw.pwms[16].duty == round(0.2 * 65535)
+
+
+def test_a_move_waiting_in_the_port_past_the_deadline_is_refused_and_nothing_moves(bench):
+    # The race of PROTOCOL.md §4: the host decided a move, froze past the watchdog time, and its frame reaches the
+    # board only then (here it waits in the port while the main loop was away): the board trips first and refuses.
+    fan, servo = bench.hw.pwms[16], bench.hw.pwms[18]
+    bench.command(SetActuator(req=1, actuator_id=1, value=0.6))
+    bench.command(SetActuator(req=2, actuator_id=2, value=15.0))
+    safe_servo = round(1333.333 / 20000 * 65535)
+    bench.hw.advance(TIMEOUT_US + 5000)  # no loop pass meanwhile
+    bench.send(SetActuator(req=3, actuator_id=1, value=0.9))
+    bench.send(SetActuator(req=4, actuator_id=2, value=-5.0))
+    duties = []
+    for _ in range(3):
+        bench.device.step()
+        duties.append((fan.duty, servo.duty))
+    out = bench.collect()
+    assert [(r.req, r.code) for r in of_type(out, Reply)] == [(3, ReplyCode.BUSY), (4, ReplyCode.BUSY)]
+    assert set(duties) == {(0, safe_servo)}  # at its safe values from the first pass on, never the stale move
+    assert of_type(out, Status)[0].state == DeviceState.SAFE  # the trip's STATUS comes before the refusals
+    assert out.index(of_type(out, Status)[0]) < out.index(of_type(out, Reply)[0])
+
+
+def test_safe_values_are_taken_in_the_hold_and_the_hold_goes_on(bench):
+    bench.command(SetActuator(req=1, actuator_id=1, value=0.6))
+    bench.run(TIMEOUT_US + 50_000, step_us=1000)
+    assert bench.device.held
+    safe = {act.id: act.safe for act in bench.actuators}
+    for req, (act_id, value) in enumerate(sorted(safe.items()), 10):  # a host ending its run: OK, not BUSY
+        assert reply_of(bench.command(SetActuator(req=req, actuator_id=act_id, value=value))).code == ReplyCode.OK
+    assert bench.device.held and bench.device.state == DeviceState.SAFE
+    assert reply_of(bench.command(SetActuator(req=20, actuator_id=1, value=0.1))).code == ReplyCode.BUSY
+    assert bench.hw.pwms[16].duty == 0
+
+
+def test_power_up_and_reset_are_safe_but_not_held(bench):
+    # PROTOCOL.md §4: the hold starts only at a trip, so a 1.0 host's first SET_ACTUATOR after power-up still works
+    assert not bench.device.held
+    assert reply_of(bench.command(AllowMoves(req=1))).code == ReplyCode.OK  # no hold: OK all the same
+    assert reply_of(bench.command(SetActuator(req=2, actuator_id=1, value=0.4))).code == ReplyCode.OK
+
+
+def test_allow_moves_feeds_the_watchdog_and_the_next_trip_holds_again(bench):
+    bench.command(SetActuator(req=1, actuator_id=1, value=0.6))
+    bench.run(TIMEOUT_US + 50_000, step_us=1000)
+    bench.command(AllowMoves(req=2))
+    bench.command(SetActuator(req=3, actuator_id=1, value=0.5))
+    assert not bench.device.held and bench.hw.pwms[16].duty == round(0.5 * 65535)
+    bench.run(TIMEOUT_US + 50_000, step_us=1000)
+    assert bench.device.held and bench.hw.pwms[16].duty == 0
+    assert reply_of(bench.command(SetActuator(req=4, actuator_id=1, value=0.5))).code == ReplyCode.BUSY
 
 
 def test_watchdog_keeps_streaming_after_it_trips(bench):

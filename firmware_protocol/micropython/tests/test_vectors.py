@@ -29,6 +29,7 @@ COMMAND_FIELDS = {
     fw_wire.HEARTBEAT: ("req",),
     fw_wire.DESCRIBE: ("req",),
     fw_wire.RESET: ("req",),
+    fw_wire.ALLOW_MOVES: ("req",),
 }
 
 
@@ -164,3 +165,26 @@ def test_hand_assembled_heartbeat_feeds_the_watchdog():
     assert device.state == fw_wire.STATE_IDLE
     rig.run(1_100_000, step_us=1000)
     assert device.state == fw_wire.STATE_SAFE
+
+
+def test_the_safe_hold_vector_after_a_trip_gets_busy_then_ok_and_moves_only_after_allow_moves():
+    # safe_hold_refusal (PROTOCOL.md §4, §8): SET_ACTUATOR fan 0.5 after a watchdog trip is refused with BUSY
+    # and moves nothing; ALLOW_MOVES gets OK; the same SET_ACTUATOR then gets OK and moves the fan
+    rig = Bench()
+    rig.boot()
+    rig.hw.host_send(encode_frame(fw_wire.SET_ACTUATOR, 0, struct.pack("<HBf", 1, 1, 0.25)))
+    rig.device.step()
+    rig.run(rig.settings["heartbeat_timeout_ms"] * 1000 + 60_000, step_us=1000)
+    assert rig.device.held and rig.hw.pwms[16].duty == 0
+    rig.collect()
+    stream = bytes.fromhex(by_name("safe_hold_refusal")["hex"])
+    first_end = stream.index(b"\x00") + 1
+    rig.hw.host_send(stream[:first_end])
+    rig.device.step()
+    assert rig.hw.pwms[16].duty == 0
+    rig.hw.host_send(stream[first_end:])
+    for _ in range(2):
+        rig.device.step()
+    replies = [(reply.req, int(reply.code)) for reply in of_type(rig.collect(), Reply)]
+    assert replies == [(7, fw_wire.BUSY), (8, fw_wire.OK), (9, fw_wire.OK)]
+    assert rig.hw.pwms[16].duty == round(0.5 * 65535)

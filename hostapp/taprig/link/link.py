@@ -28,13 +28,16 @@ from taprig.link.errors import (
 from taprig.link.events import ByteRateMeter, ChunkSubscriber, EventSubscriber, LinkEvent, LinkEventKind, LinkGap
 from taprig.link.ports import candidate_paths, open_port, read_available, usb_identity
 from taprig.protocol import (
-    Describe, Description, Heartbeat, Log, Reply, ReplyCode, SetActuator, Start, Stop, StreamDecoder, encode_message,
+    AllowMoves, Describe, Description, Heartbeat, Log, Reply, ReplyCode, SetActuator, Start, Stop, StreamDecoder,
+    encode_message,
 )
 
 log = logging.getLogger(__name__)
 
 #: The protocol major version this host speaks (PROTOCOL.md §2).
 PROTO_MAJOR = 1
+#: The first minor version whose boards hold their safe state after a watchdog trip until ALLOW_MOVES (§4).
+SAFE_HOLD_MINOR = 1
 _LINK_ERRORS = (serial.SerialException, OSError)
 
 
@@ -164,6 +167,14 @@ class Link:
     def connected(self) -> bool:
         """True while a port is open and not known to be broken."""
         return self._port is not None and self._broken is None
+
+    @property
+    def board_holds_safe(self) -> bool:
+        """True when the board's description says it keeps the safe hold after a watchdog trip (protocol 1.1 on,
+        PROTOCOL.md §4): it refuses a move with ``BUSY`` until :meth:`allow_moves`. False for a 1.0 board (it obeys
+        the next setpoint after a trip, so only the host's own check guards it) and before any description."""
+        description = self.decoder.description
+        return description is not None and description.proto_minor >= SAFE_HOLD_MINOR
 
     @property
     def heartbeat_enabled(self) -> bool:
@@ -577,6 +588,12 @@ class Link:
         """Send ``SET_ACTUATOR`` (value in the actuator's unit) and wait for its reply; ``guard`` as in
         :meth:`_write`."""
         return self.command(SetActuator(req=0, actuator_id=actuator_id, value=value), timeout, guard)
+
+    def allow_moves(self, timeout: float = 1.0) -> Reply:
+        """Send ``ALLOW_MOVES`` (PROTOCOL.md §4): end the board's safe hold after a watchdog trip. Moves nothing
+        itself. Only on an operator's request (a resume, a run they started), never on the host's own initiative;
+        only to a board that has the hold (:attr:`board_holds_safe`: a 1.0 board would answer UNKNOWN_COMMAND)."""
+        return self.command(AllowMoves(req=0), timeout)
 
     def _run_heartbeat(self) -> None:
         while True:

@@ -20,6 +20,7 @@ from taprig.protocol.framing import (
 from taprig.protocol.messages import (
     ActuatorInfo,
     ActuatorKind,
+    AllowMoves,
     ChannelInfo,
     Describe,
     Description,
@@ -46,6 +47,7 @@ __all__ = [
     "MAX_FRAME",
     "ActuatorInfo",
     "ActuatorKind",
+    "AllowMoves",
     "ChannelInfo",
     "Counters",
     "Describe",

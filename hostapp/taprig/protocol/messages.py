@@ -28,6 +28,7 @@ class MsgType(IntEnum):
     HEARTBEAT = 0x84
     DESCRIBE = 0x85
     RESET = 0x86
+    ALLOW_MOVES = 0x87
 
 
 class Encoding(IntEnum):
@@ -210,6 +211,14 @@ class Reset:
     req: int
 
 
+@dataclass(frozen=True)
+class AllowMoves:
+    """``ALLOW_MOVES`` (0x87, protocol 1.1): ends the device's safe hold after a watchdog trip, so that
+    ``SET_ACTUATOR`` may move actuators again; a host sends it only on an operator's request (PROTOCOL.md §4)."""
+
+    req: int
+
+
 MESSAGE_TYPES: dict[type, MsgType] = {
     Description: MsgType.DESCRIPTION,
     Samples: MsgType.SAMPLES,
@@ -222,6 +231,7 @@ MESSAGE_TYPES: dict[type, MsgType] = {
     Heartbeat: MsgType.HEARTBEAT,
     Describe: MsgType.DESCRIBE,
     Reset: MsgType.RESET,
+    AllowMoves: MsgType.ALLOW_MOVES,
 }
 
 _STATUS = struct.Struct("<HhIIIB")
@@ -299,7 +309,7 @@ def encode_body(msg: object) -> bytes:
         return _pack(_START, "Start", msg.req, msg.rate_hz, msg.channel_mask, msg.scans_per_frame)
     if isinstance(msg, SetActuator):
         return _pack(_SET_ACTUATOR, "SetActuator", msg.req, msg.actuator_id, msg.value)
-    if isinstance(msg, (Stop, Heartbeat, Describe, Reset)):
+    if isinstance(msg, (Stop, Heartbeat, Describe, Reset, AllowMoves)):
         return _pack(_REQ, type(msg).__name__, msg.req)
     raise TypeError(f"not a protocol message: {type(msg).__name__}")
 
@@ -427,8 +437,9 @@ BODY_DECODERS: dict[int, Callable[[bytes], object]] = {
     MsgType.HEARTBEAT: _req_only(Heartbeat),
     MsgType.DESCRIBE: _req_only(Describe),
     MsgType.RESET: _req_only(Reset),
+    MsgType.ALLOW_MOVES: _req_only(AllowMoves),
 }
 """Body parsers for every known type except SAMPLES; each raises :class:`MalformedBody` on a short or bad body.
 
-Bytes past the fields of version 1.0 are ignored (PROTOCOL.md §2).
+Bytes past the fields of version 1.1 are ignored (PROTOCOL.md §2).
 """

@@ -29,7 +29,7 @@ from taprig import __version__
 from taprig.analysis.unsteady import tap_fluctuation
 from taprig.link import Link, LinkError, LinkEvent, LinkEventKind
 from taprig.link.errors import CommandRefusedError, CommandTimeoutError
-from taprig.protocol import Description, DeviceState, Log, RawBlock, Status, channels_to_mask
+from taprig.protocol import Description, DeviceState, Log, RawBlock, ReplyCode, Status, channels_to_mask
 from taprig.reduce import ReducedBlock, ReducedMean, Reducer, ScanFlag, finite_mean
 from taprig.protocol import ActuatorKind
 from taprig.rig import Calibration, Rig, build_calibration, calibration_to_text, wind_off_zero
@@ -207,6 +207,8 @@ class Acquisition:
         self.display_skipped = 0
         self.link_state = "closed"
         self.last_log = ""
+        #: What the operator is told once the run is open (the caller shows them): e.g. a board without a safe hold.
+        self.notices: list[str] = []
         self.device_state: DeviceState | None = None  # from the board's latest STATUS
         self._window = _Window(window_s)
         self._window_lock = threading.Condition()
@@ -259,6 +261,7 @@ class Acquisition:
                 + "".join(f"\n  - {d}" for d in differences))
         if self.writer is not None:
             self.writer.set_meta("device_description", _description_json(self.description))
+        self._end_safe_hold_at_open()
         self._thread.start()
         mask = channels_to_mask([c.index for c in self.rig.channels])
         pacing = self.link.pacing if paced else None
@@ -275,6 +278,24 @@ class Acquisition:
         self._stream = (rate_hz, mask)
         self.event("start", {"rate_hz": rate_hz, "channel_mask": mask})
         return self.description
+
+    def _end_safe_hold_at_open(self) -> None:
+        """A run the operator started may move what they ask: end a safe hold the board kept from before (a
+        watchdog trip of an earlier run, PROTOCOL.md §4). No setpoint has been decided yet, so none can be stale.
+        A 1.0 board has no hold: the operator is told that only the host's own check guards it after a trip."""
+        if self.link.board_holds_safe:
+            try:
+                self.link.allow_moves()
+            except LinkError as exc:
+                self.close()
+                raise AcquisitionError(f"the board did not end its safe hold at the start of the run: {exc}") \
+                    from None
+            return
+        d = self.description
+        self.notices.append(f"the board's firmware speaks protocol {d.proto_major}.{d.proto_minor}: after a "
+                            "watchdog trip it obeys the next setpoint, so only taprig's own check stops a stale one; "
+                            "update the firmware (protocol 1.1 adds the safe hold)")
+        self.event("board without safe hold", {"protocol": f"{d.proto_major}.{d.proto_minor}"})
 
     def close(self) -> ShutdownReport:
         """End the run: the same single path as :meth:`shutdown`, for a normal ending."""
@@ -354,7 +375,7 @@ class Acquisition:
             return ActuatorOutcome(actuator.name, shown, unit, False, False, "link down")
         self._stamp_setpoint(actuator, actuator.safe)
         try:
-            self.link.set_actuator(actuator.id, actuator.to_device(actuator.safe), timeout=timeout)
+            self.link.set_actuator(actuator.id, self._device_value(actuator, actuator.safe), timeout=timeout)
         except CommandTimeoutError:
             return ActuatorOutcome(actuator.name, shown, unit, True, False, f"no reply within {timeout:g} s")
         except CommandRefusedError as exc:
@@ -379,7 +400,18 @@ class Acquisition:
                 self._stamp_setpoint(actuator, actuator.safe, by_board=True)
 
     def clear_halt(self) -> None:
-        """Allow setpoints again after a halt: only on an explicit action of the operator."""
+        """Allow setpoints again after a halt: only on an explicit action of the operator.
+
+        A board that keeps a safe hold after a watchdog trip (PROTOCOL.md §4, 1.1) is sent ``ALLOW_MOVES`` first:
+        the operator's resume is the one request that ends it. If it is refused or unanswered the halt stands
+        (:class:`AcquisitionError`). With the link down nothing can be sent: the halt is cleared, and a board that
+        still holds refuses the next move (which halts again, saying so)."""
+        if self.link.board_holds_safe and self.link.connected:
+            try:
+                self.link.allow_moves()
+            except LinkError as exc:
+                raise AcquisitionError(f"the board did not end its safe hold, so the halt stands: {exc}") from None
+            self.event("allow_moves", {"by": "operator"})
         with self._halt_lock:
             reason, self.halt_reason = self.halt_reason, None
             self.halted.clear()
@@ -483,12 +515,20 @@ class Acquisition:
             timing = {"at_t_ns": int(at_t_ns), "late": newest is not None and newest >= at_t_ns}
         self._stamp_setpoint(actuator, value, timing=timing)
         try:
-            self.link.set_actuator(actuator.id, actuator.to_device(value), guard=None if safe else self._last_look)
+            self.link.set_actuator(actuator.id, self._device_value(actuator, value),
+                                   guard=None if safe else self._last_look)
         except AcquisitionError:  # withheld at the last moment: the host froze or the board went safe meanwhile
             self._stamp_setpoint(actuator, previous, refused=True)
             raise
         except LinkError as exc:
             self._stamp_setpoint(actuator, previous, refused=True)
+            if isinstance(exc, CommandRefusedError) and exc.code == ReplyCode.BUSY and self.link.board_holds_safe:
+                # PROTOCOL.md §4: the board tripped its watchdog and holds its safe state; this setpoint (decided
+                # before the host heard of the trip, or sent after a freeze) moved nothing
+                self._halt(f"the board's watchdog tripped and holds {self._actuator_names()} at their safe values; "
+                           f"it refused {name} {value:g} and nothing moved; nothing more is sent until the operator "
+                           "checks the rig and resumes")
+                raise AcquisitionError(f"{name} not set to {value:g}: {self.halt_reason}") from None
             # The reply may have been held up by the very thing that made the board safe (a frozen host, a
             # reset): let the reader catch up a moment so the operator hears the true cause.
             if self.halted.wait(0.25):
@@ -496,6 +536,16 @@ class Acquisition:
             raise AcquisitionError(f"{name}: the board did not take {value:g}: {exc}") from None
         if not safe:
             self._driven = True
+
+    def _device_value(self, actuator, value: float) -> float:
+        """``value`` [SI] in the board's unit; the rig's safe value is sent as the board's own safe value from its
+        description (the same within the rig check's tolerance), bit for bit, so a board in its safe hold, which
+        compares at f32, always takes it."""
+        if value == actuator.safe and self.description is not None:
+            info = next((a for a in self.description.actuators if a.id == actuator.id), None)
+            if info is not None:
+                return info.safe
+        return actuator.to_device(value)
 
     def _stamp_setpoint(self, actuator, value: float, refused: bool = False, by_board: bool = False,
                         timing: dict | None = None) -> None:

@@ -61,7 +61,7 @@ def build_description(rig: Rig, options: SimOptions) -> Description:
         for a in rig.actuators
     )
     return Description(
-        proto_major=1, proto_minor=0, firmware=FIRMWARE, uid=board_uid(rig, options),
+        proto_major=1, proto_minor=1, firmware=FIRMWARE, uid=board_uid(rig, options),
         rate_min_hz=RATE_MIN_HZ, rate_max_hz=rate_max_hz(n), max_frame=MAX_FRAME,
         heartbeat_timeout_ms=options.watchdog_ms or 1000, channels=tuple(channels), actuators=actuators,
     )

@@ -27,6 +27,7 @@ import numpy as np
 from taprig.protocol import (
     FLAG_BOOT,
     ActuatorKind,
+    AllowMoves,
     Describe,
     DeviceState,
     Heartbeat,
@@ -95,7 +96,9 @@ class SimulatedDevice:
     (id → :class:`taprig.sim.board.ActuatorState`), ``faults`` (:class:`taprig.sim.faults.LinkFaults`),
     ``disconnected``, ``host_frames`` (well-formed host frames received since open), ``commands`` (every host
     command other than HEARTBEAT received since open, as (true time [ns], state before it, message), in order:
-    what the board was told, for tests and ``taprig sim --command-log``).
+    what the board was told, for tests and ``taprig sim --command-log``), ``command_codes`` (index in ``commands``
+    → the :class:`ReplyCode` the board answered it with), ``held`` (in the safe hold after a watchdog trip,
+    PROTOCOL.md §4: a SET_ACTUATOR away from safe is refused with BUSY until ALLOW_MOVES).
     """
 
     def __init__(self, rig: Rig, options: SimOptions = SimOptions()):
@@ -131,6 +134,8 @@ class SimulatedDevice:
         self._deferred: list[tuple[float, object]] = []
         #: Commands that arrived after the horizon they were meant for had passed (acted on arrival).
         self.late_commands = 0
+        self.command_codes: dict[int, ReplyCode] = {}
+        self._answering: int | None = None
         self._boot()
 
     # -- what the driver uses ------------------------------------------------------------------------------
@@ -217,7 +222,11 @@ class SimulatedDevice:
         for item in items:
             if not isinstance(item, Heartbeat):
                 self.commands.append((self._now, self.state, item))
-            self._command(item)
+                self._answering = len(self.commands) - 1
+            try:
+                self._command(item)
+            finally:
+                self._answering = None
         unknown = after.unknown_types - before.unknown_types - foreign
         malformed = well_formed - len(items) - unknown - (after.duplicates - before.duplicates)
         for _ in range(unknown):
@@ -254,6 +263,7 @@ class SimulatedDevice:
         self._decoder = StreamDecoder(receiver="device")
         self._plan: StreamPlan | None = None
         self._safe = False
+        self.held = False  # power-up state is safe, not held (PROTOCOL.md §4)
         self._watchdog_ns = _NEVER
         self._next_status_dev = 0
         self._deferred = []
@@ -321,11 +331,13 @@ class SimulatedDevice:
         self._boot()
 
     def _trip_watchdog(self) -> None:
-        """PROTOCOL.md §4: actuators to safe, state 2, a STATUS and a LOG at level 30; streaming goes on."""
+        """PROTOCOL.md §4: actuators to safe, state 2 and the safe hold, a STATUS and a LOG at level 30; streaming
+        goes on."""
         self._drop_deferred()  # nothing the host asked for before the trip may move later
         for act in self.actuators.values():
             act.command(act.info.safe, self._now)
         self._safe = True
+        self.held = True
         self._send_status()
         self._send(Log(30, f"watchdog: no host frame for {self.options.watchdog_ms} ms, actuators set to safe"))
 
@@ -354,6 +366,9 @@ class SimulatedDevice:
             self._set_actuator(msg)
         elif isinstance(msg, Describe):
             self._send(self.description)
+            self._reply(msg.req, ReplyCode.OK)
+        elif isinstance(msg, AllowMoves):
+            self.held = False  # moves nothing: the actuators stay at their safe values until set
             self._reply(msg.req, ReplyCode.OK)
         elif isinstance(msg, Reset):
             self._reply(msg.req, ReplyCode.OK)
@@ -401,7 +416,12 @@ class SimulatedDevice:
         if not low <= value <= high:
             self._reply(msg.req, ReplyCode.OUT_OF_RANGE, f"{act.info.name} takes [{act.info.min:g}, {act.info.max:g}]")
             return
-        self._safe = False
+        if self.held and value != np.float32(act.info.safe):  # PROTOCOL.md §4: a stale move after a trip
+            self._reply(msg.req, ReplyCode.BUSY, f"safe hold after a watchdog trip: {act.info.name} stays at "
+                                                 f"{act.info.safe:g} {act.info.unit} until ALLOW_MOVES")
+            return
+        if not self.held:  # a safe value sent in the hold is taken, and the hold goes on
+            self._safe = False
         if value == np.float32(act.info.safe):  # a safe value acts at once, and cancels a move still waiting
             self._drop_deferred(msg.actuator_id)
         elif self._defer(msg):
@@ -428,6 +448,8 @@ class SimulatedDevice:
         self.faults.passed()
 
     def _reply(self, req: int, code: ReplyCode, detail: str = "") -> None:
+        if self._answering is not None:
+            self.command_codes[self._answering] = code
         self._send(Reply(req, code, detail))
 
     # -- clocks -----------------------------------------------------------------------------------------------

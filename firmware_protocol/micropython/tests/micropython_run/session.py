@@ -52,11 +52,28 @@ def session():
     command(0x82, struct.pack("<H", 4))
     hw.advance(1500000)  # silence: the watchdog trips
     device.step()
-    return hw.take_output()
+    fan = hw.pwms[board_config.ACTUATORS[0]["pin"]]
+    duties = [fan.duty]
+    # The race of PROTOCOL.md §4 (1.1): a move the host decided before it froze reaches the board only after the
+    # watchdog time, while the board's loop was away: the board trips first, refuses it with BUSY, nothing moves.
+    command(0x83, struct.pack("<HBf", 5, 1, 0.5))  # in the hold: BUSY
+    command(0x87, struct.pack("<H", 9))  # ALLOW_MOVES
+    command(0x83, struct.pack("<HBf", 10, 1, 0.5))
+    duties.append(fan.duty)
+    hw.advance(1500000)
+    hw.host_send(fw_wire.encode_frame(0x83, 0, struct.pack("<HBf", 6, 1, 0.75)))
+    device.step()
+    duties.append(fan.duty)
+    command(0x87, struct.pack("<H", 7))  # ALLOW_MOVES: moves nothing itself
+    duties.append(fan.duty)
+    command(0x83, struct.pack("<HBf", 8, 1, 0.25))
+    duties.append(fan.duty)
+    return hw.take_output(), duties
 
 
 if __name__ == "__main__":  # not on import (pytest's doctest collection imports every module)
-    out = session()
+    out, duties = session()
     fw_codec._native_crc32 = None  # again with the table-driven CRC
-    assert session() == out
+    assert session() == (out, duties)
     print("OUT " + binascii.hexlify(out).decode())
+    print("FAN " + " ".join([str(d) for d in duties]))

@@ -55,6 +55,8 @@ def open_run(args, port: str, default_dir: str, stem: str | None = None, rig=Non
             writer.close()
             _remove_unused(out)
         raise UserError(str(exc)) from None
+    for notice in acquisition.notices:
+        print(f"taprig: note: {notice}", file=sys.stderr)
     return acquisition, out
 
 

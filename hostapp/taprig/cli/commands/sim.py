@@ -215,10 +215,13 @@ class PtyBridge:
         import dataclasses
         import json
 
-        for t_ns, state, msg in self.device.commands[self._logged:]:
+        codes = self.device.command_codes
+        for index, (t_ns, state, msg) in enumerate(self.device.commands[self._logged:], self._logged):
             fields_ = {k: v for k, v in dataclasses.asdict(msg).items() if k != "req"}
+            reply = codes.get(index)
             self._log.write(json.dumps({"t_s": t_ns / 1e9, "command": type(msg).__name__, **fields_,
-                                        "state_before": state.name}) + "\n")
+                                        "state_before": state.name,
+                                        "reply": reply.name if reply is not None else None}) + "\n")
         self._logged = len(self.device.commands)
         self._log.flush()
 
