@@ -79,6 +79,7 @@ def measured_sweep(balance: bool = True) -> SweepAnalysis:
     (0.60543, 0.10149, "0.61 ± 0.10"),      # GUM §7.2.6: u to two significant digits, the value to match
     (153.8136, 0.9734, "153.81 ± 0.97"),
     (-0.00134, 0.000163, "-0.00134 ± 0.00016"),
+    (-0.0131, 2.61, "0.0 ± 2.6"),           # rounds to zero: no negative zero
     (1.0, NAN, None), (NAN, 0.1, None), (None, 0.1, None), (1.0, None, None), ("x", 0.1, None), (math.inf, 1, None),
 ])
 def test_pm_writes_a_value_with_its_uncertainty_or_nothing(value, u, text):

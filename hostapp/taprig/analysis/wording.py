@@ -58,6 +58,8 @@ def pm(value, u, scale: float = 1.0) -> str | None:
     if not (math.isfinite(v) and math.isfinite(e)):
         return None
     d = decimals(e)
+    if round(v, d) == 0.0:
+        v = 0.0  # no "-0.0": a value that rounds to zero has no sign to show
     return f"{v:.{d}f} ± {e:.{d}f}"
 
 
