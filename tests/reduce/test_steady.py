@@ -13,7 +13,7 @@ def spin_up(t, final=153.0, start=0.0, tau=1.5):
     return final + (start - final) * np.exp(-t / tau)
 
 
-@pytest.mark.parametrize("tau", [0.5, 1.5, 2.5])
+@pytest.mark.parametrize("tau", [0.5, 1.5, 2.5, 4.5])
 def test_the_point_is_averaged_only_once_the_spin_up_is_over(tau):
     rng = np.random.default_rng(7)
     rate, criteria = 500.0, SteadyCriteria()
@@ -53,3 +53,15 @@ def test_too_little_data_or_no_values_are_not_steady():
     t = np.arange(0.0, 2.0, 0.01)
     cl = np.where(t > 1.0, 0.5, np.nan)  # no flow in the first part of the hold
     assert "no value" in steady_state(t, {"cl": cl}, {"cl": 0.01}, 1.5).reason
+
+
+def test_a_drift_the_window_means_hide_is_still_a_drift():
+    # a steady 0.4 Pa rise over the 3 s hold, no noise: the three window means spread by only 2/3 of it (0.27 Pa,
+    # inside the 0.3 Pa tolerance), the fitted line sees all of it (exact arithmetic of a straight line)
+    t = np.arange(0.0, 3.0, 0.002)
+    q = 153.0 + 0.4 * t / 3.0
+    verdict = steady_state(t, {"q": q}, {"q": 0.3}, 3.0)
+    assert verdict.spread["q"] == pytest.approx(0.4 * 2 / 3, rel=1e-3) and verdict.spread["q"] < 0.3
+    assert verdict.trend["q"] == pytest.approx(0.4, rel=1e-3)
+    assert not verdict.steady and "still drifting" in verdict.reason
+    assert steady_state(t, {"q": 153.0 + 0.2 * t / 3.0}, {"q": 0.3}, 3.0).steady

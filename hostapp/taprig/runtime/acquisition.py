@@ -726,6 +726,16 @@ class Acquisition:
             except Exception:  # a port lost meanwhile: the reader notices and the run halts
                 pass
 
+    def board_time_ns(self) -> int | None:
+        """The board's clock now [ns] on a paced run (the simulated board's own), else None."""
+        pacing = self.link.pacing if self._paced else None
+        if pacing is None:
+            return None
+        try:
+            return int(pacing.board_time_ns())
+        except Exception:  # a port lost meanwhile: the reader notices and the run halts
+            return None
+
     @property
     def newest_t_ns(self) -> int | None:
         """Device time of the newest scan received [ns], or None before any."""

@@ -74,9 +74,15 @@ class Timeline:
 
     @classmethod
     def begin(cls, acq: Acquisition, timeout_s: float = 30.0) -> Timeline:
-        """A timeline from the start of a paced stream (the same device time in every mode), else from the
-        newest scan (waiting for the first)."""
-        start = acq.stream_start_ns if acq.paced else None
+        """A timeline from the start of a paced stream that has not begun yet (the same device time in every mode),
+        or ``DECISION_S`` after the board's time now on a paced board that runs already; else from the newest scan
+        (waiting for the first)."""
+        start = None
+        if acq.paced:
+            now, first = acq.board_time_ns(), acq.stream_start_ns
+            start = first if now is not None and first is not None and now <= first else None
+            if start is None and now is not None:
+                start = now + round(DECISION_S * 1e9)
         if start is None:
             acq.wait_through(-(1 << 62), timeout_s)  # any scan at all
             start = acq.newest_t_ns
@@ -186,11 +192,12 @@ def run_sweep(acq: Acquisition, angles_rad: Sequence[float], settle_s: float = 1
             clock.set(name, float(alpha))
             clock.wait(settle_s + average_s)
             acq.check_flow(average_s, clock.window(average_s))  # points without flow would be numbers without meaning
+            extra = {"plan_index": len(points), "leg": "up", "plan_alpha_rad": float(alpha),
+                     "fan": _fan_setting(acq), "by_hand": False}
             if steady is not None:
-                clock.steady(replace(steady, hold_s=max(steady.hold_s, average_s)))
-            mean = acq.capture_point(f"alpha {math.degrees(alpha):+.1f} deg", average_s,
-                                     {"plan_index": len(points), "leg": "up", "plan_alpha_rad": float(alpha),
-                                      "fan": _fan_setting(acq), "by_hand": False}, window=clock.window(average_s))
+                extra["steady"] = clock.steady(replace(steady, hold_s=max(steady.hold_s, average_s))).as_record()
+            mean = acq.capture_point(f"alpha {math.degrees(alpha):+.1f} deg", average_s, extra,
+                                     window=clock.window(average_s))
             point = SweepPoint(float(alpha), mean, None, acq.last_record)
             points.append(point)
             if on_point is not None:
@@ -287,10 +294,10 @@ def run_plan(acq: Acquisition, plan: SweepPlan, settle_s: float = 1.0, average_s
                     driven.add(servo.name)
             clock.wait(settle_s + average_s)
             acq.check_flow(average_s, clock.window(average_s))  # points without flow would be numbers without meaning
+            extra = point_record_keys(target)
             if steady is not None:
-                clock.steady(replace(steady, hold_s=max(steady.hold_s, average_s)))
-            mean = acq.capture_point(target.label(), average_s, point_record_keys(target),
-                                     window=clock.window(average_s))
+                extra["steady"] = clock.steady(replace(steady, hold_s=max(steady.hold_s, average_s))).as_record()
+            mean = acq.capture_point(target.label(), average_s, extra, window=clock.window(average_s))
             records.append(acq.last_record)
             point = SweepPoint(acq.alpha_rad, mean, target, acq.last_record)
             points.append(point)
