@@ -101,3 +101,45 @@ def test_stored_plan_round_trips_and_bad_ones_are_named():
 def test_plans_that_cannot_run_are_refused(kwargs, message):
     with pytest.raises(PlanError, match=message):
         SweepPlan(**kwargs)
+
+
+# -- plans from what the operator typed (the terminal's options and the page's form) ------------------------------
+def test_fan_settings_as_a_list_or_a_range_and_refusals_name_the_field():
+    from taprig.runtime.plan import FieldError, parse_fan_settings
+
+    assert parse_fan_settings("0.3,0.5,0.8") == (0.3, 0.5, 0.8)
+    assert parse_fan_settings("0.3:0.9:0.2") == (0.3, 0.5, 0.7, 0.9)  # TO included when a step lands on it
+    assert parse_fan_settings("0.3:0.8:0.2") == (0.3, 0.5, 0.7)
+    for text, words in (("0.6:0.3:0.1", "runs down"), ("0.6,0.3", "must rise"), ("a,b", "FROM:TO:STEP"),
+                        ("0.1:0.5:0", "FROM:TO:STEP"), ("nan,1", "finite")):
+        with pytest.raises(FieldError, match=words) as caught:
+            parse_fan_settings(text)
+        assert caught.value.field == "fans"
+
+
+def test_the_request_decides_the_kind_of_plan_as_the_terminal_does():
+    from pathlib import Path
+
+    from taprig.rig import load_rig
+    from taprig.runtime.plan import FieldError, SweepRequest, plan_from_request
+
+    rigs = Path(__file__).resolve().parents[2] / "rigs"
+    wing, venturi = load_rig(rigs / "naca0012-20tap.toml"), load_rig(rigs / "venturi-8.toml")
+    angle = plan_from_request(wing, SweepRequest(None, 0.8, 0, 4, 2))
+    assert angle == SweepPlan("angle", _angles(0, 2, 4), (0.8,))
+    nested = plan_from_request(wing, SweepRequest((0.5, 0.8), 0.8, 0, 4, 2))
+    assert nested.inner == "angle" and nested.fans == (0.5, 0.8)
+    re_sweep = plan_from_request(wing, SweepRequest((0.5, 0.8), at_deg=4))
+    assert re_sweep == SweepPlan("fan", _angles(4), (0.5, 0.8))
+    assert plan_from_request(venturi, SweepRequest((0.4, 0.7))) == SweepPlan("fan", (), (0.4, 0.7))
+    left = plan_from_request(wing, SweepRequest(None, None, 0, 4, 2))  # the page's angle sweep: fan as it is
+    assert left.fans == ()
+    for rig, req, field in ((wing, SweepRequest((0.5, 0.8), inner="fan"), "at_deg"),
+                            (venturi, SweepRequest(None, 0.8, 0, 4, 2, inner="angle"), "by_hand"),
+                            (venturi, SweepRequest((0.0, 0.5)), "fans"),
+                            (wing, SweepRequest(None, 0.8, 0, 20, 2), "to_deg"),
+                            (wing, SweepRequest(None, 1.5, 0, 4, 2), "fan"),
+                            (wing, SweepRequest((0.5, 0.8), at_deg=4, past_stall=1), "past_stall")):
+        with pytest.raises(FieldError) as caught:
+            plan_from_request(rig, req)
+        assert caught.value.field == field

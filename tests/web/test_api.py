@@ -248,7 +248,7 @@ def test_a_sweep_from_the_page_takes_its_points_and_can_be_stopped(live):
     assert curve["lines"][0].startswith(f"Lift slope {pm(curve['slope_per_deg'], u_slope)} per degree")
     assert f"Cl max {pm(curve['cl_max'], curve['u_cl_max'])}" in curve["lines"][2]
     # refused before anything moves: reversed range, outside the servo's limits
-    assert "below" in live.post("/api/live/sweep-start", {"from_deg": 4, "to_deg": 0}).get_json()["error"]
+    assert "runs down" in live.post("/api/live/sweep-start", {"from_deg": 4, "to_deg": 0}).get_json()["error"]
     assert "limits" in live.post("/api/live/sweep-start", {"from_deg": 0, "to_deg": 40}).get_json()["error"]
     stopper = live.post("/api/live/sweep-start", {"from_deg": -4, "to_deg": 12, "step_deg": 1, "settle_s": 0.5,
                                                   "average_s": 0.5})

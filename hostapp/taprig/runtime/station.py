@@ -30,7 +30,7 @@ from taprig.analysis import find_stall, linear_range_fit, wording
 from taprig.runtime.acquisition import Acquisition, AcquisitionError, LiveState
 from taprig.runtime.hub import Hub
 from taprig.runtime.viewframe import (actuator_value_from_operator, flow_state, num, point_summary, reading,
-                                      rig_description)
+                                      rig_description, sweep_results)
 from taprig.session.store import SessionWriter
 
 
@@ -39,6 +39,7 @@ TREND_RATE_HZ = 5.0     # trend samples per second kept for it
 DISPLAY_CPU_SHARE = 0.25  # the most of one core that display updates may take (their rate drops before that)
 BUDGET_RATE_HZ = 4.0    # full means (with the uncertainty budget) a second; display updates between take their u
 BUDGET_CPU_SHARE = 0.02  # the most of one core that the periodic full means may take (their rate drops before)
+UNWATCHED_GRACE_S = 5.0  # a sweep started from a control page ends this long after the last control page closed
 BUDGET_Q_CHANGE = 0.1   # a full mean describes later windows' uncertainties while q is within 10 % (or 2 u(q)) of its own
 
 
@@ -93,6 +94,49 @@ class SweepStatus:
     asking: dict | None = None
     answer: list = field(default_factory=list)
     answered: threading.Event = field(default_factory=threading.Event)
+    #: Set to end the sweep at once, mid-wait (STOP, the page that ran it closed, the server closing); the
+    #: sentence says why. ``stop`` instead ends it after the point being taken.
+    abort: threading.Event = field(default_factory=threading.Event)
+    abort_reason: str = ""
+    #: ``"angle"``, ``"fan"`` or ``"nested"``; the plan; the point being taken (:meth:`SweepStatus.view`); the
+    #: records of the sweep's points so far (with those carried from a resumed session first).
+    kind: str = ""
+    plan: object = None
+    current: dict | None = None
+    records: list = field(default_factory=list)
+    resumed_from: str | None = None
+    leased: bool = False  # started from a control page: ends when the last one closes (Station.control_page)
+
+    def view(self) -> dict:
+        """The sweep's state as the page shows it (point k of at most N, its leg, fan setting and angle)."""
+        return {"running": self.running, "done": self.done, "total": self.total, "message": self.message,
+                "asking": self.asking, "kind": self.kind, "current": self.current, "taken": len(self.records),
+                "exact": getattr(self.plan, "past_stall", None) is None, "resumed_from": self.resumed_from}
+
+
+class _Abortable:
+    """The acquisition as a page sweep sees it: the same object, except that once ``status.abort`` is set every
+    wait ends at once (:meth:`check_running` raises) and nothing but a safe value may be sent, so a STOP, a closed
+    page or a closing server end a sweep mid-point instead of after it. ``watch`` is called at each check (the
+    station's lease on the page that started the sweep)."""
+
+    def __init__(self, acq, status: SweepStatus, watch: Callable[[], None]):
+        self._acq, self._status, self._watch = acq, status, watch
+
+    def __getattr__(self, name):
+        return getattr(self._acq, name)
+
+    def check_running(self) -> None:
+        self._watch()
+        if self._status.abort.is_set():
+            raise AcquisitionError(self._status.abort_reason or "sweep stopped")
+        self._acq.check_running()
+
+    def set_actuator(self, name: str, value: float, *args, **kwargs):
+        actuator = next((a for a in self._acq.rig.actuators if a.name == name), None)
+        if self._status.abort.is_set() and (actuator is None or value != actuator.safe):
+            raise AcquisitionError(self._status.abort_reason or "sweep stopped")
+        return self._acq.set_actuator(name, value, *args, **kwargs)
 
 
 class PageOperator:
@@ -327,6 +371,10 @@ class Station(Display):
         self.new_writer = new_writer
         self.needs_confirmation = real_board
         self.sweep = SweepStatus()
+        self._sweep_thread: threading.Thread | None = None
+        self._control_pages = 0           # control-key pages with their event stream open
+        self._unwatched_since: float | None = None
+        self.unwatched_grace_s = UNWATCHED_GRACE_S
         self._rates: tuple[float, dict] | None = None
         self._last_rates: dict[str, float] = {}
         self._thread.start()
@@ -372,15 +420,9 @@ class Station(Display):
         return si
 
     def stop_all(self) -> list[str]:
-        """Stop any sweep and send every actuator to its safe value; returns what could not be sent."""
-        self.sweep.stop.set()
-        failed = []
-        for actuator in self.rig.actuators:
-            try:
-                self.acq.set_actuator(actuator.name, actuator.safe)
-            except AcquisitionError as exc:
-                failed.append(str(exc))
-        self.acq.event("stop", {"by": "operator", "failed": failed})
+        """Stop any sweep at once and send every actuator to its safe value; returns what could not be sent."""
+        self._abort_sweep("sweep stopped: STOP, every actuator to its safe value")
+        failed = self._all_safe("operator")
         self.notify("stop: every actuator sent to its safe value" if not failed else
                     "stop: " + "; ".join(failed) + " — the board's watchdog sets safe values when the host goes quiet")
         return failed
@@ -441,69 +483,173 @@ class Station(Display):
         self.notify(f"recording stopped: {writer.path}")
         return str(writer.path)
 
-    def start_sweep(self, from_deg: float, to_deg: float, step_deg: float, settle_s: float = 1.0,
-                    average_s: float = 1.0, up_and_down: bool = False, past_stall: int | None = None,
-                    by_hand: bool = False) -> int:
-        """Step the angle through the range on a thread (a :class:`taprig.runtime.plan.SweepPlan`: up, and back down
-        with ``up_and_down``; ending ``past_stall`` points past the stall, the angle then back to its safe value),
-        capturing a point at each; returns the most points it can take. ``by_hand`` (a rig with no angle
-        actuator): the operator sets each angle and answers with :meth:`hand_angle_set`. The fan stays as set."""
+    def start_plan(self, plan, settle_s: float = 1.0, average_s: float = 1.0, spin_up_s: float = 4.0,
+                   resumed=None, source: str | None = None) -> int:
+        """Run the sweep ``plan`` (a :class:`taprig.runtime.plan.SweepPlan`, made by
+        :func:`taprig.runtime.plan.plan_from_request` as ``taprig sweep`` makes its plans) on a thread, capturing a
+        point at each of its points; returns the most points it can take. With ``resumed`` (a
+        :class:`taprig.runtime.sweep.Resumable` read from the session ``source``) the points taken there are
+        carried into the session being recorded and only the missing ones are taken.
+
+        A sweep by hand asks the operator at the page (:meth:`hand_angle_set`). How it ends: its last point, the
+        operator's stop (after the point being taken), STOP, the page that started it closing (when one was open),
+        the station closing, a halt or an error. Whenever the plan runs the fan, every ending sends the actuators
+        it drives to their safe values; an angle sweep alone leaves the fan as the operator set it and the angle
+        where it is (back to its safe value past the stall) unless STOP, a closed page or the station's end stopped
+        it, which send every actuator to its safe value."""
         from taprig.reduce.steady import SteadyCriteria
-        from taprig.runtime.plan import PlanError, SweepPlan
+        from taprig.runtime.plan import PlanError
+        from taprig.runtime.resume import carry_points
         from taprig.runtime.sweep import check_plan, run_plan
 
-        servo = self.rig.actuator_of_kind(ActuatorKind.ANGLE)
-        if servo is None and not by_hand:
-            raise AcquisitionError("this rig has no angle actuator to sweep; a sweep by hand sets each angle from "
-                                   "the page")
         if self.sweep.running:
             raise AcquisitionError("a sweep is already running; stop it first")
-        for name, v in (("from", from_deg), ("to", to_deg), ("step", step_deg), ("settle", settle_s),
-                        ("average", average_s)):
-            if not math.isfinite(v):
-                raise AcquisitionError(f"sweep {name}: must be a finite number")
-        if step_deg <= 0 or settle_s < 0 or not 0 < average_s <= 30 or settle_s > 60:
-            raise AcquisitionError("sweep: step must be > 0°, settle 0–60 s and average 0–30 s")
-        if to_deg < from_deg:
-            raise AcquisitionError(f"sweep: 'to' ({to_deg:g}°) is below 'from' ({from_deg:g}°); give the range "
-                                   "from the lower angle up (up and back down adds the way back)")
-        if servo is not None:
-            lo, hi = math.degrees(servo.min), math.degrees(servo.max)
-            if from_deg < lo - 1e-9 or to_deg > hi + 1e-9:
-                raise AcquisitionError(f"sweep: {from_deg:g}…{to_deg:g}° is outside the servo's limits {lo:g}…{hi:g}°")
-        n = int(math.floor((to_deg - from_deg) / step_deg + 1e-9)) + 1
-        if n > 200:
-            raise AcquisitionError(f"sweep: {n} angles is more than 200; take a larger step")
+        for name, v, lo, hi in (("settle", settle_s, 0, 600), ("average", average_s, 1e-3, 600),
+                                ("spin-up", spin_up_s, 0, 600)):
+            if not (math.isfinite(v) and lo <= v <= hi):
+                raise AcquisitionError(f"sweep {name}: must be a number of seconds within {lo:g}…{hi:g}")
         try:
-            plan = SweepPlan("angle", tuple(math.radians(from_deg + k * step_deg) for k in range(n)), (),
-                             up_and_down, past_stall, by_hand)
             check_plan(self.rig, plan)
+            done = plan.next_point(resumed.records) if resumed is not None else None
         except PlanError as exc:
             raise AcquisitionError(f"sweep: {exc}") from None
-        if not by_hand:
+        if resumed is not None and done is None:
+            raise AcquisitionError("sweep: that sweep is complete; nothing to resume")
+        if not plan.by_hand or plan.fans:
             self._check_may_move()
-        status = SweepStatus(running=True, total=plan.size_bound(), message="sweep running")
+        kind = "nested" if plan.inner == "angle" and len(plan.fans) > 1 else plan.inner
+        status = SweepStatus(running=True, total=plan.size_bound(), message="sweep running", kind=kind, plan=plan,
+                             resumed_from=source)
         self.sweep = status
-        operator = PageOperator(self.acq, status, self.notify) if by_hand else None
+        if resumed is not None:
+            status.records.extend(carry_points(self.acq, resumed, source))
+            status.done = len(status.records)
+        status.current = self._point_view(plan.next_point(status.records))
+        acq = _Abortable(self.acq, status, lambda: self._watch_lease(status))
+        operator = PageOperator(acq, status, self.notify) if plan.by_hand else None
+        status.leased = self._control_pages > 0
+        runs_fan = bool(plan.fans)
 
         def on_point(point) -> None:
             self.add_sweep_point(point)
+            status.records.append(point.record)
             status.done += 1
+            status.current = self._point_view(plan.next_point(status.records))
 
         def run() -> None:
             try:
-                run_plan(self.acq, plan, settle_s=settle_s, average_s=average_s, on_point=on_point,
-                         stop=status.stop, steady=SteadyCriteria(),  # each point averaged once the flow is steady
-                         operator=operator, safe_at_end=past_stall is not None)
+                run_plan(acq, plan, settle_s=settle_s, average_s=average_s, on_point=on_point, stop=status.stop,
+                         steady=SteadyCriteria(),  # each point averaged once the flow is steady
+                         done=list(status.records), spin_up_s=spin_up_s, operator=operator,
+                         safe_at_end=runs_fan or plan.past_stall is not None)
                 status.message = "sweep stopped by the operator" if status.stop.is_set() else "sweep done"
             except (AcquisitionError, ReduceError, ValueError) as exc:
-                status.message = f"sweep ended: {exc}"
+                status.message = status.abort_reason if status.abort.is_set() else f"sweep ended: {exc}"
             finally:
+                ended = self._sweep_safe(plan, all_of_them=status.abort.is_set(), runs_fan=runs_fan)
+                if ended:
+                    status.message += "; " + ended
+                status.current = None
                 status.running = False
                 self.notify(status.message)
 
-        threading.Thread(target=run, name="taprig-page-sweep", daemon=True).start()
+        self._sweep_thread = threading.Thread(target=run, name="taprig-page-sweep", daemon=True)
+        self._sweep_thread.start()
         return plan.size_bound()
+
+    def start_sweep(self, from_deg: float, to_deg: float, step_deg: float, settle_s: float = 1.0,
+                    average_s: float = 1.0, up_and_down: bool = False, past_stall: int | None = None,
+                    by_hand: bool = False) -> int:
+        """An angle sweep from ``from_deg`` to ``to_deg`` [°] with the fan left as it is (:meth:`start_plan`)."""
+        from taprig.runtime.plan import PlanError, SweepRequest, plan_from_request
+
+        try:
+            plan = plan_from_request(self.rig, SweepRequest(None, None, from_deg, to_deg, step_deg, None,
+                                                            up_and_down, past_stall, by_hand))
+        except PlanError as exc:
+            raise AcquisitionError(f"sweep: {exc}") from None
+        return self.start_plan(plan, settle_s, average_s)
+
+    @staticmethod
+    def _point_view(point) -> dict | None:
+        if point is None:
+            return None
+        return {"number": point.index + 1, "label": point.label(), "leg": point.leg, "fan": point.fan,
+                "alpha_deg": None if point.alpha_rad is None else math.degrees(point.alpha_rad),
+                "by_hand": point.by_hand}
+
+    def _sweep_safe(self, plan, all_of_them: bool, runs_fan: bool) -> str:
+        """At a page sweep's end: the actuators it drives (every one with ``all_of_them``) to their safe values,
+        when the plan runs the fan or the sweep was aborted; returns what could not be sent ('' when all was)."""
+        if not (all_of_them or runs_fan):
+            return ""
+        kinds = {ActuatorKind.FAN} | ({ActuatorKind.ANGLE} if plan.angles_rad and not plan.by_hand else set())
+        failed = []
+        for actuator in self.rig.actuators:
+            if all_of_them or actuator.kind in kinds:
+                try:
+                    self.acq.set_actuator(actuator.name, actuator.safe)
+                except AcquisitionError as exc:
+                    failed.append(str(exc))
+        if failed:
+            return ("not every safe value could be sent (" + "; ".join(failed) + "): the board's watchdog sets them "
+                    "when the host goes quiet")
+        return ""
+
+    def _abort_sweep(self, reason: str) -> None:
+        status = self.sweep
+        if status.running and not status.abort.is_set():
+            status.abort_reason = reason
+        status.stop.set()
+        status.abort.set()
+
+    # -- the page that runs a sweep ---------------------------------------------------------------------------
+    def control_page(self, opened: bool) -> None:
+        """A page with the control key opened (True) or closed (False) its event stream. A sweep started while
+        one was open ends, every actuator to its safe value, once none has been open for ``unwatched_grace_s``
+        (a page reloaded within that keeps it)."""
+        with self._lock:
+            self._control_pages += 1 if opened else -1
+            self._unwatched_since = None if self._control_pages > 0 else time.monotonic()
+
+    def _watch_lease(self, status: SweepStatus) -> None:
+        since = self._unwatched_since
+        if getattr(status, "leased", False) and self._control_pages <= 0 and since is not None \
+                and time.monotonic() - since >= self.unwatched_grace_s and not status.abort.is_set():
+            self._abort_sweep(f"sweep stopped: the page that ran it was closed (no control page for "
+                              f"{self.unwatched_grace_s:g} s); every actuator sent to its safe value")
+            self._all_safe("station: the page that ran the sweep closed")
+
+    def _all_safe(self, by: str) -> list[str]:
+        """Every actuator to its safe value, recorded as a stop ``by`` whom; returns what could not be sent."""
+        failed = []
+        for actuator in self.rig.actuators:
+            try:
+                self.acq.set_actuator(actuator.name, actuator.safe)
+            except AcquisitionError as exc:
+                failed.append(str(exc))
+        self.acq.event("stop", {"by": by, "failed": failed})
+        return failed
+
+    def end_sweep(self, reason: str, timeout_s: float = 10.0) -> None:
+        """End a running sweep at once (the station or its run is closing): its actuators to their safe values,
+        and wait for its thread."""
+        if not self.sweep.running:
+            return
+        self._abort_sweep(reason)
+        thread = self._sweep_thread
+        if thread is not None and thread.is_alive():
+            thread.join(timeout_s)
+
+    def sweep_results(self) -> dict:
+        """What the analysis says of the page sweep's points so far (:func:`taprig.runtime.viewframe.sweep_results`)."""
+        status = self.sweep
+        return {"sweep": status.view(), **sweep_results(list(status.records), self.rig, status.plan)}
+
+    def close(self) -> None:
+        """End a sweep still running (every actuator to its safe value), then stop the display thread."""
+        self.end_sweep("sweep stopped: the dashboard is closing; every actuator sent to its safe value")
+        super().close()
 
     def hand_angle_set(self, angle_deg: float | None) -> None:
         """The operator's answer to a sweep by hand: the angle set [°] (None stops the sweep there)."""
@@ -534,8 +680,7 @@ class Station(Display):
         """Link health, setpoints, recording, sweep, points and the board's state for a display update."""
         return {"mode": "live", "link": self._link(state), "setpoints": self._setpoints(),
                 "recording": self._recording(),
-                "sweep": {"running": self.sweep.running, "done": self.sweep.done, "total": self.sweep.total,
-                          "message": self.sweep.message, "asking": self.sweep.asking},
+                "sweep": self.sweep.view(),
                 "points": len(self.points), "needs_confirmation": self.needs_confirmation,
                 "halt": getattr(self.acq, "halt_reason", None)}
 

@@ -253,3 +253,62 @@ def point_record_summary(index: int, label: str, record: dict) -> dict:
             "re": num(record.get("re")), "cl": coeff("cl"), "cd_p": coeff("cd_p"), "cm_qc": coeff("cm_qc"),
             "cl_balance": num(record.get("cl_balance")) if flowing else None,
             "mass_flow_kg_s": num(record.get("mass_flow_kg_s")) if flowing else None, "flags": flags}
+
+
+def sweep_results(records, rig, plan=None) -> dict:
+    """What :func:`taprig.analysis.analyse_points` says of a sweep's point ``records`` on ``rig``, as the page
+    shows it: the points (Re, angle, fan, leg, Cl, Cd_p, C where measured, each with its uncertainty), a venturi's
+    discharge coefficient against Re_D with its mean and ISO 5167-4's range, and the lift curve of each fan setting
+    of an angle sweep (one per setting of a nested sweep). Where an analysis cannot be made, ``reasons`` says why
+    (name → sentence). Nothing is computed here beyond choosing the records of each fan setting."""
+    from taprig.analysis import ISO_MACHINED, analyse_points
+
+    records = [r for r in records if isinstance(r, dict)]
+    out: dict = {"n": len(records), "kind": rig.kind.value, "inner": getattr(plan, "inner", None),
+                 "points": [], "discharge": None, "lift": [], "reasons": {}}
+    if not records:
+        return out
+    a = analyse_points(records, rig)
+    t = a.table
+    c_of: dict[int, tuple] = {}
+    dc = a.discharge
+    if dc is not None:
+        c_of = {i: (dc.c[i], dc.u_c[i], dc.re_d[i]) for i in range(len(dc.c))}
+        ok = np.isfinite(dc.c)
+        out["discharge"] = {
+            "mean_c": pair(dc.mean_c, dc.u_mean_c), "beta": num(dc.beta),
+            "re_d_range": [num(dc.re_d[ok].min()), num(dc.re_d[ok].max())] if ok.any() else None,
+            "iso": {"c": ISO_MACHINED.c, "relative_uncertainty": ISO_MACHINED.relative_uncertainty,
+                    "re_d": list(ISO_MACHINED.re_d), "beta": list(ISO_MACHINED.beta)},
+            "iso_outside": list(a.iso_outside)}
+    for i in range(len(t)):
+        c = c_of.get(i)
+        out["points"].append({
+            "number": i + 1, "label": t.labels[i], "leg": t.leg[i] or None, "fan": num(t.fan[i]),
+            "alpha_deg": num(math.degrees(t.alpha_set_rad[i])), "q_pa": pair(t.q_pa[i], t.u_q_pa[i]),
+            "re": pair(t.re[i], t.u_re[i]), "cl": pair(t.cl[i], t.u_cl[i]), "cd_p": pair(t.cd_p[i], t.u_cd_p[i]),
+            "c": None if c is None else pair(c[0], c[1]),
+            "carried": records[i].get("carried_from") is not None})
+    reasons = dict(a.reasons)
+    if rig.kind.value == "airfoil" and (plan is None or plan.inner == "angle"):
+        groups = a.fan_groups or (None,)
+        for fan in groups:
+            chosen = [r for r in records if fan is None or (isinstance(r.get("fan"), (int, float))
+                                                            and math.isclose(float(r["fan"]), fan))]
+            g = a if len(groups) == 1 else analyse_points(chosen, rig)
+            fit, stall = g.fit, g.stall
+            re = g.table.re[np.isfinite(g.table.re)]
+            out["lift"].append({
+                "fan": fan, "points": len(chosen), "re": [num(re.min()), num(re.max())] if re.size else None,
+                "slope_per_deg": pair(fit.slope * math.pi / 180, fit.u_slope * math.pi / 180) if fit else None,
+                "alpha_zero_deg": pair(math.degrees(fit.alpha_zero), math.degrees(fit.u_alpha_zero)) if fit else None,
+                "linear_range_deg": [num(math.degrees(x)) for x in fit.alpha_range] if fit else None,
+                "cl_max": pair(stall.cl_max, stall.u_cl_max) if stall else None,
+                "alpha_stall_deg": num(math.degrees(stall.alpha_stall)) if stall and stall.stalled else None,
+                "stall_resolution_deg": num(math.degrees(stall.resolution)) if stall and stall.stalled else None,
+                "why": g.reasons.get("fit") if fit is None else g.reasons.get("stall")})
+    elif rig.kind.value == "airfoil":
+        reasons["fit"] = "a fan sweep at one angle: Cl against Re (no lift slope from one angle)"
+    out["reasons"] = {k: str(v) for k, v in reasons.items()}
+    out["thin_airfoil_slope_per_deg"] = THIN_AIRFOIL_SLOPE * math.pi / 180
+    return out

@@ -51,9 +51,10 @@ MAX_BODY = 256 * 1024      # a calibration file is a few kB
 class RequestProblem(Exception):
     """A request that cannot be carried out: its HTTP status and a sentence for the person at the page."""
 
-    def __init__(self, message: str, status: int = 400):
+    def __init__(self, message: str, status: int = 400, field: str | None = None):
         super().__init__(message)
         self.status = status
+        self.field = field  # the form field the message is about (the page shows it there)
 
 
 @dataclass
@@ -182,6 +183,8 @@ def create_app(sources: Sources, keys: Keys, log: Callable[[str], None] | None =
 
     @app.errorhandler(RequestProblem)
     def _problem(exc: RequestProblem):
+        if exc.field is not None:
+            return jsonify(error=str(exc), field=exc.field), exc.status
         return jsonify(error=str(exc)), exc.status
 
     @app.errorhandler(HTTPException)
@@ -238,8 +241,11 @@ def create_app(sources: Sources, keys: Keys, log: Callable[[str], None] | None =
                 raise RequestProblem(f"too many viewers at once (at most {MAX_STREAMS}); try again later", 429)
             streams["open"] += 1
         sub = display.frames.subscribe()
+        watching = role() == "control" and isinstance(display, Station)  # a page that may run a sweep
 
         def events():
+            if watching:
+                display.control_page(True)
             try:
                 yield b"retry: 2000\n\n"
                 latest = display.frames.latest
@@ -256,6 +262,8 @@ def create_app(sources: Sources, keys: Keys, log: Callable[[str], None] | None =
                     yield frame.event()
             finally:
                 sub.close()
+                if watching:
+                    display.control_page(False)
                 with streams_lock:
                     streams["open"] -= 1
 
@@ -305,6 +313,47 @@ def create_app(sources: Sources, keys: Keys, log: Callable[[str], None] | None =
         except AcquisitionError as exc:
             raise RequestProblem(str(exc), 409) from None
         return jsonify(ok=True, **(result or {}))
+
+    @app.get("/api/live/sweep-results")
+    def sweep_results():
+        need("view")
+        return jsonify(sources.get("live").sweep_results())
+
+    @app.get("/api/live/resumable")
+    def resumable():
+        """The sessions of the folder whose sweep on this rig was interrupted, each with the point it takes next."""
+        from taprig.runtime.resume import resumable_sessions
+
+        need("view")
+        station = sources.get("live")
+        if sources.sessions_dir is None:
+            return jsonify(sessions=[], folder=None)
+        return jsonify(folder=str(sources.sessions_dir), sessions=resumable_sessions(sources.sessions_dir, station.rig))
+
+    @app.post("/api/live/sweep-resume")
+    def sweep_resume():
+        """Go on with the interrupted sweep of a session of the folder: ``{"name": FILE, "zero": bool}``."""
+        from taprig.runtime.plan import PlanError
+        from taprig.runtime.resume import open_resumable
+
+        station = sources.get("live")
+        body = _json_body()
+        path = _session_path(body)
+        try:
+            resumed = open_resumable(path, station.rig)
+        except PlanError as exc:
+            raise RequestProblem(str(exc).replace(str(path), path.name), 409, field="resume") from None
+        try:
+            if _flag(body, "zero", True):
+                station.zero()
+            if station.acq.writer is None and station.new_writer is not None:
+                station.start_recording()
+            total = station.start_plan(resumed.plan, resumed.settle_s, resumed.average_s, resumed.spin_up_s,
+                                       resumed=resumed, source=path.name)
+        except AcquisitionError as exc:
+            raise RequestProblem(str(exc), 409, field="resume") from None
+        return jsonify(ok=True, points=total, carried=len(resumed.records),
+                       recording=str(station.acq.writer.path) if station.acq.writer is not None else None)
 
     @app.post("/api/<name>/playback/<action>")
     def playback_control(name: str, action: str):
@@ -394,20 +443,59 @@ def _setpoint(station: Station, body: dict) -> dict:
     return {"sent": station.set_actuator(name, value)}
 
 
+#: How the page's sweep form names each field of a :class:`taprig.runtime.plan.SweepRequest` in its messages.
+PAGE_NAMES = {"fans": "fan settings", "fan": "fan", "from_deg": "from", "to_deg": "to", "step_deg": "step",
+              "at_deg": "held angle", "up_and_down": "'up and back down'", "past_stall": "points past the stall",
+              "by_hand": "by hand"}
+
+SWEEP_KINDS = ("angle", "fan", "nested")
+
+
 def _sweep(station: Station, body: dict) -> dict:
+    """Start a sweep from the page's form: ``kind`` "angle" (the fan left as it is), "fan" (the fan settings
+    ``fans``, typed as at the terminal: ``0.3,0.5,0.8`` or ``0.3:0.9:0.2``; at the held angle ``at_deg`` on a rig
+    with an angle servo) or "nested" (the angle sweep at each fan setting). The plan is made as ``taprig sweep``
+    makes it (:func:`taprig.runtime.plan.plan_from_request`); a refusal names its field."""
+    from taprig.runtime.plan import FieldError, SweepRequest, parse_fan_settings, plan_from_request
+
+    kind = body.get("kind", "angle")
+    if kind not in SWEEP_KINDS:
+        raise RequestProblem(f"'kind' must be one of {', '.join(SWEEP_KINDS)}, got {kind!r}", field="kind")
+
+    def number(key: str, low: float, high: float, default: float | None = None) -> float:
+        try:
+            return _number(body, key, low, high, default)
+        except RequestProblem as exc:
+            raise RequestProblem(f"{PAGE_NAMES.get(key, key)}: {exc}", field=key) from None
+
     past = body.get("past_stall")
-    total = station.start_sweep(_number(body, "from_deg", -90, 90), _number(body, "to_deg", -90, 90),
-                                _number(body, "step_deg", 0.01, 45, 2.0), _number(body, "settle_s", 0, 60, 1.0),
-                                _number(body, "average_s", 0.1, 30, 1.0), _flag(body, "up_and_down"),
-                                None if past is None else int(_number(body, "past_stall", 0, 50)),
-                                _flag(body, "by_hand"))
-    return {"angles": total}
+    try:
+        fans = None
+        if kind != "angle":
+            text = body.get("fans")
+            if not isinstance(text, str) or len(text) > 2000:
+                raise FieldError("fans", "fan settings: type them as 0.3,0.5,0.8 or FROM:TO:STEP")
+            fans = parse_fan_settings(text, PAGE_NAMES["fans"])
+        at_deg = number("at_deg", -90, 90) if kind == "fan" and body.get("at_deg") is not None else None
+        angle_part = kind != "fan"
+        request = SweepRequest(
+            fans, None, number("from_deg", -90, 90, -4.0) if angle_part else -4.0,
+            number("to_deg", -90, 90) if angle_part else None, number("step_deg", 0.01, 90, 2.0) if angle_part else 2.0,
+            at_deg, _flag(body, "up_and_down"),
+            None if past is None or not angle_part else int(number("past_stall", 0, 50)),
+            _flag(body, "by_hand"), "fan" if kind == "fan" else "angle")
+        plan = plan_from_request(station.rig, request, PAGE_NAMES)
+    except FieldError as exc:
+        raise RequestProblem(str(exc), field=exc.field) from None
+    total = station.start_plan(plan, number("settle_s", 0, 60, 1.0), number("average_s", 0.1, 30, 1.0),
+                               number("spin_up_s", 0, 60, 4.0))
+    return {"angles": total, "points": total, "kind": kind}
 
 
-def _flag(body: dict, key: str) -> bool:
-    value = body.get(key, False)
+def _flag(body: dict, key: str, default: bool = False) -> bool:
+    value = body.get(key, default)
     if not isinstance(value, bool):
-        raise RequestProblem(f"'{key}' must be true or false, got {value!r}")
+        raise RequestProblem(f"'{key}' must be true or false, got {value!r}", field=key)
     return value
 
 

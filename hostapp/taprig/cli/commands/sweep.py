@@ -27,35 +27,16 @@ SAFETY = ("Safety on a real rig: fan guards on, eye protection with compressed a
 
 def fan_settings(text: str) -> tuple[float, ...]:
     """An argparse type: fan settings as a list (``0.3,0.5,0.8``) or a range ``FROM:TO:STEP`` (``0.3:0.9:0.2``,
-    TO included when a step lands on it), each a finite number; they must rise."""
+    TO included when a step lands on it), each a finite number; they must rise
+    (:func:`taprig.runtime.plan.parse_fan_settings`)."""
     import argparse
 
-    from taprig.cli import _number
+    from taprig.runtime.plan import PlanError, parse_fan_settings
 
     try:
-        if ":" in text:
-            start, stop, step = (_number(part) for part in text.split(":"))
-            if not all(map(math.isfinite, (start, stop, step))) or step <= 0:
-                raise ValueError
-            if stop < start:
-                raise argparse.ArgumentTypeError(f"the range {text!r} runs down (FROM {start:g} above TO {stop:g}); "
-                                                 "give it from the lower setting up (--up-and-down adds the way back)")
-            n = int(math.floor((stop - start) / step + 1e-9)) + 1
-            if n > MAX_ANGLES:
-                raise argparse.ArgumentTypeError(f"{text!r} is more than {MAX_ANGLES} fan settings")
-            values = tuple(round(start + k * step, 12) for k in range(n))
-        else:
-            values = tuple(_number(part) for part in text.split(","))
-    except (ValueError, argparse.ArgumentTypeError) as exc:
-        if isinstance(exc, argparse.ArgumentTypeError):
-            raise
-        raise argparse.ArgumentTypeError(f"expected fan settings as 0.3,0.5,0.8 or FROM:TO:STEP, got {text!r}") from None
-    if not all(map(math.isfinite, values)):
-        raise argparse.ArgumentTypeError(f"expected finite fan settings, got {text!r}")
-    if any(b <= a for a, b in zip(values, values[1:])):
-        raise argparse.ArgumentTypeError(f"fan settings {text!r} must rise from first to last (--up-and-down adds "
-                                         "the way back)")
-    return values
+        return parse_fan_settings(text, "")
+    except PlanError as exc:
+        raise argparse.ArgumentTypeError(str(exc).strip()) from None
 
 
 def add_sweep_options(p) -> None:
@@ -116,97 +97,30 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
-MAX_ANGLES = 1000
-
-
 def _check_numbers(args) -> None:
     """What the argparse types cannot see alone (they check each value: finite, in range; exit 2)."""
-    for flag, value in (("--from-deg", args.start_deg), ("--to-deg", args.stop_deg), ("--step-deg", args.step_deg),
-                        ("--fan", args.fan), ("--settle", args.settle), ("--average", args.average),
-                        ("--spin-up", args.spin_up)):  # also for callers that build the options themselves
-        if value is not None and not math.isfinite(value):
+    for flag, value in (("--settle", args.settle), ("--average", args.average), ("--spin-up", args.spin_up)):
+        if value is not None and not math.isfinite(value):  # also for callers that build the options themselves
             raise UserError(f"{flag} must be a finite number, got {value}", 2)
     for flag, value in (("--settle", args.settle), ("--spin-up", args.spin_up)):
         if value < 0:
             raise UserError(f"{flag} must be 0 s or more, got {value:g}", 2)
     if args.average <= 0:
         raise UserError(f"--average must be more than 0 s, got {args.average:g}", 2)
-    if args.step_deg <= 0:
-        raise UserError(f"--step-deg must be positive, got {args.step_deg:g}", 2)
-
-
-def angles(args, rig, by_hand: bool = False) -> list[float]:
-    """The sweep's angles [rad], from --from-deg to --to-deg in --step-deg steps (at most ``MAX_ANGLES``).
-
-    A range reaching outside the servo's limits is refused, not clipped; a range that runs down says so.
-    """
-    from taprig.protocol import ActuatorKind
-
-    _check_numbers(args)
-    servo = rig.actuator_of_kind(ActuatorKind.ANGLE)
-    if servo is None and not by_hand:
-        raise UserError(f"{args.rig}: an angle sweep steps the angle of attack, but this rig has no angle actuator "
-                        "(--by-hand: the operator sets each angle; --fans: sweep the fan)", 2)
-    if args.stop_deg is None and servo is None:
-        raise UserError("--to-deg is needed for a sweep by hand (there is no servo whose limit to go to)", 2)
-    stop = math.degrees(servo.max) if args.stop_deg is None else args.stop_deg
-    if stop < args.start_deg:
-        raise UserError(f"--from-deg {args.start_deg:g} is above --to-deg {stop:g}: the range runs down; give it "
-                        "from the lower angle up (--up-and-down adds the way back)", 2)
-    if (stop - args.start_deg) / args.step_deg > MAX_ANGLES:
-        raise UserError(f"--from-deg {args.start_deg:g} to {stop:g} in steps of {args.step_deg:g}° is more than "
-                        f"{MAX_ANGLES} angles; take a larger --step-deg", 2)
-    n = int(math.floor((stop - args.start_deg) / args.step_deg + 1e-9)) + 1
-    chosen = [math.radians(args.start_deg + k * args.step_deg) for k in range(max(n, 0))]
-    if servo is not None:
-        lo, hi = math.degrees(servo.min), math.degrees(servo.max)
-        if args.start_deg < lo - 1e-9 or stop > hi + 1e-9:
-            raise UserError(f"--from-deg {args.start_deg:g} … --to-deg {stop:g} reaches outside the servo's limits "
-                            f"{lo:g}…{hi:g}°: angles outside them are refused, not clipped (a sweep needs at least "
-                            "3 angles within the servo's limits)", 2)
-    if len(chosen) < 3:
-        raise UserError(f"--from-deg {args.start_deg:g} to {stop:g} in steps of {args.step_deg:g}° makes "
-                        f"{len(chosen)} angle{'s' if len(chosen) != 1 else ''}; a sweep needs at least 3", 2)
-    return chosen
 
 
 def build_plan(args, rig):
-    """The sweep plan of the command line for ``rig``, checked against the rig's limits (UserError, exit 2)."""
-    from taprig.protocol import ActuatorKind
-    from taprig.runtime.plan import PlanError, SweepPlan
+    """The sweep plan of the command line for ``rig`` (:func:`taprig.runtime.plan.plan_from_request`, as the
+    dashboard makes its plans), checked against the rig's limits (UserError, exit 2)."""
+    from taprig.runtime.plan import PlanError, SweepRequest, plan_from_request
     from taprig.runtime.sweep import check_plan
 
     _check_numbers(args)
-    servo, fan = rig.actuator_of_kind(ActuatorKind.ANGLE), rig.actuator_of_kind(ActuatorKind.FAN)
-    fans = getattr(args, "fans", None)
-    at_deg, by_hand = getattr(args, "at_deg", None), getattr(args, "by_hand", False)
-    past, both = getattr(args, "past_stall", None), getattr(args, "up_and_down", False)
-    if fan is None:
-        raise UserError(f"{args.rig}: this rig has no fan actuator for the sweep to start")
-    if fans is None and not fan.min <= args.fan <= fan.max:
-        raise UserError(f"--fan {args.fan:g} is outside the fan's range {fan.min:g} … {fan.max:g} ({fan.unit})", 2)
-    if by_hand and servo is not None:
-        raise UserError(f"--by-hand is for a rig with no angle servo; {args.rig} sets its angle with "
-                        f"{servo.name!r}", 2)
-    if by_hand and at_deg is not None:
-        raise UserError("--by-hand and --at-deg exclude each other (a sweep by hand steps the angle)", 2)
-    angle_sweep = by_hand or (servo is not None and at_deg is None)
+    request = SweepRequest(getattr(args, "fans", None), args.fan, args.start_deg, args.stop_deg, args.step_deg,
+                           getattr(args, "at_deg", None), getattr(args, "up_and_down", False),
+                           getattr(args, "past_stall", None), getattr(args, "by_hand", False))
     try:
-        if angle_sweep:
-            plan = SweepPlan("angle", tuple(angles(args, rig, by_hand)), fans or (args.fan,), both, past, by_hand)
-        else:
-            if fans is None:
-                what = "this rig has no angle servo" if servo is None else "--at-deg holds the angle"
-                raise UserError(f"{what}: give the fan settings to sweep with --fans (0.3,0.5,0.8 or "
-                                "FROM:TO:STEP)" + (", or --by-hand to set angles by hand" if rig.section else ""), 2)
-            if len(fans) < 2:
-                raise UserError(f"--fans gives {len(fans)} setting; a fan sweep needs at least 2", 2)
-            if past is not None:
-                raise UserError("--past-stall ends an angle sweep past its stall; this is a fan sweep", 2)
-            held = (math.radians(at_deg),) if at_deg is not None and servo is not None else ()
-            if at_deg is not None and servo is None:
-                raise UserError("--at-deg holds the servo's angle, but this rig has no angle servo", 2)
-            plan = SweepPlan("fan", held, fans, both)
+        plan = plan_from_request(rig, request)
         check_plan(rig, plan)
     except PlanError as exc:
         raise UserError(str(exc), 2) from None
@@ -307,27 +221,15 @@ def sweep(args, port: str, stem: str | None = None, linger: bool = False) -> int
 def _resumable(args, rig):
     """The interrupted sweep named by --resume (None without it); refused when it cannot go on here."""
     from taprig.runtime.plan import PlanError
-    from taprig.runtime.sweep import check_plan, read_resumable
-    from taprig.session.store import SessionError
+    from taprig.runtime.resume import open_resumable
 
     path = getattr(args, "resume", None)
     if not path:
         return None
     try:
-        resumed = read_resumable(path)
-    except (PlanError, SessionError) as exc:
-        raise UserError(str(exc)) from None
-    except OSError as exc:
-        raise UserError(f"{path}: cannot read the session ({exc.strerror or exc})") from None
-    if resumed.rig_id != rig.id:
-        raise UserError(f"{path}: its sweep ran on rig {resumed.rig_id!r}, not {rig.id!r} ({args.rig})")
-    if resumed.complete:
-        raise UserError(f"{path}: its sweep is complete ({len(resumed.records)} points); nothing to resume")
-    try:
-        check_plan(rig, resumed.plan)
+        return open_resumable(path, rig)
     except PlanError as exc:
-        raise UserError(f"{path}: {exc}") from None
-    return resumed
+        raise UserError(f"{exc} ({args.rig})" if "its sweep ran on rig" in str(exc) else str(exc)) from None
 
 
 class TerminalOperator:
@@ -406,18 +308,13 @@ class _SweepRun:
     def _carry(self) -> None:
         """Copy the points of the resumed session into this one, each marked with the session it came from."""
         from taprig.cli.ending import emit
+        from taprig.runtime.resume import carry_points
 
         if self.resumed is None:
             return
-        r = self.resumed
-        self.acq.event("sweep resumed", {"session_id": r.session_id, "file": str(self.args.resume),
-                                         "points": len(r.records)})
-        for record in r.records:
-            carried = dict(record, carried_from=r.session_id)
-            if self.acq.writer is not None:
-                self.acq.writer.add_point(str(record.get("label") or "sweep point"), carried)
-            self.records.append(carried)
-        emit(f"resuming the sweep of {self.args.resume}: {len(r.records)} point{'s' if len(r.records) != 1 else ''} "
+        self.records.extend(carry_points(self.acq, self.resumed, self.args.resume))
+        n = len(self.resumed.records)
+        emit(f"resuming the sweep of {self.args.resume}: {n} point{'s' if n != 1 else ''} "
              "taken there are carried into this session")
 
     def go(self) -> None:
