@@ -542,7 +542,8 @@ class Station(Display):
                          steady=SteadyCriteria(),  # each point averaged once the flow is steady
                          done=list(status.records), spin_up_s=spin_up_s, operator=operator,
                          safe_at_end=runs_fan or plan.past_stall is not None)
-                status.message = "sweep stopped by the operator" if status.stop.is_set() else "sweep done"
+                status.message = (status.abort_reason if status.abort.is_set() and status.abort_reason else
+                                  "sweep stopped by the operator" if status.stop.is_set() else "sweep done")
             except (AcquisitionError, ReduceError, ValueError) as exc:
                 status.message = status.abort_reason if status.abort.is_set() else f"sweep ended: {exc}"
             finally:
