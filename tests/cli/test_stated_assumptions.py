@@ -43,8 +43,32 @@ def test_live_line_says_no_flow_and_the_static_in_force():
     assert "p∞ = room − 1.1q (suction)" in line
 
 
-def test_check_predicts_the_uncertainties_at_the_design_speed_and_warns(capsys):
-    assert main(["check", str(RIGS / "water-hydrofoil.toml"), str(RIGS / "cylinder.toml")]) == 0
+def test_check_predicts_the_uncertainties_at_the_design_speed_and_warns(capsys, tmp_path):
+    # the water example with its low-range parts swapped for ±5 kPa ones: far too wide for its 80 Pa q
+    text = (RIGS / "water-hydrofoil.toml").read_text(encoding="utf-8")
+    for part in ("250.0", "1000.0"):
+        text = text.replace(f"pmin_pa = -{part}\npmax_pa = {part}", "pmin_pa = -5000.0\npmax_pa = 5000.0")
+    wide = tmp_path / "water-wide.toml"
+    wide.write_text(text, encoding="utf-8")
+    assert main(["check", str(wide), str(RIGS / "cylinder.toml")]) == 0
     out = capsys.readouterr().out
     assert "predicts at the design speed 0.4 m/s" in out and "predicts at the design speed 15 m/s" in out
-    assert "WARNING: u(q)" in out and "the q sensor is too wide" in out  # the water rig's ±5 kPa for 80 Pa
+    assert "WARNING: u(q)" in out and "the q sensor is too wide" in out
+
+
+def test_check_says_what_each_kind_computes_and_no_example_warns(capsys):
+    # issue 10, item 7: an airfoil's line gives α and u(Cl); a cylinder's u(Cd) and no α or Cl; a venturi's
+    # station Cp and mass flow, no α or Cl
+    rigs = sorted(RIGS.glob("*.toml"))
+    assert main(["check", *map(str, rigs)]) == 0
+    out = capsys.readouterr().out
+    assert "WARNING" not in out
+    blocks = {b.split("'", 2)[1]: b for b in out.split("\nrig ")[0:] if "'" in b}
+    cylinder, venturi = blocks["cylinder-13tap"], blocks["venturi-8"]
+    airfoil = blocks["naca0012-20tap"]
+    assert "(α 4°, datasheet bands" in airfoil and "  u(Cl) " in airfoil
+    for block in (cylinder, venturi):
+        assert "(datasheet bands" in block and "α 4°" not in block and "u(Cl)" not in block
+    assert "  u(Cd) " in cylinder and "u(Cp), u(Cd) propagated by" in cylinder
+    assert "  mass flow " in venturi and "g/s (ISO 5167-4)" in venturi
+    assert "the sensors' own share after a zero (C ± 0.5%" in venturi

@@ -162,7 +162,7 @@ def test_degraded_integral_over_the_remaining_taps(make_block):
     p[:, 1:8] = [-300.0, -200.0, -100.0, -50.0, 100.0, 50.0, 20.0]
     block = make_block(reducer, p)
     counts = block.counts.copy()
-    counts[1, 2] = 4095.0  # channel u2 (tap U2) at the 12-bit rail
+    counts[1, 2] = reducer.rig.sensor_of(2).rails[1]  # channel u2 (tap U2) at its converter's rail
     rb = reducer.reduce(RawBlock(counts, chans, block.t_ns, block.scan_index))
     assert rb.scan_flags[1] & ScanFlag.DEGRADED and not rb.scan_flags[0] & ScanFlag.DEGRADED
     keep = np.array([name != "U2" for name in rb.tap_names])

@@ -21,8 +21,12 @@ from taprig.reduce import Ambient, Reducer
 from taprig.rig import parse_rig
 
 RIG_TEXT = (Path(__file__).resolve().parents[2] / "rigs" / "venturi-8.toml").read_text(encoding="utf-8")
-# ±10 kPa bridges so a blower-fed venturi at +3 kPa inlet gauge fits the sensors
-WIDE = RIG_TEXT.replace("pmin_pa = -2000.0\npmax_pa = 2000.0", "pmin_pa = -10000.0\npmax_pa = 10000.0")
+# a blower-fed venturi at +3 kPa inlet gauge: every station on a ±10 kPa gauge bridge (the example's low-range
+# parts, the stations referred to the inlet's line, are sized for its suction-side bench)
+WIDE = RIG_TEXT.replace('measures = "differential"\nrelative_to = "s1"', 'measures = "gauge"')
+for _range in ("250.0", "500.0", "1000.0"):
+    WIDE = WIDE.replace(f"pmin_pa = -{_range}\npmax_pa = {_range}", "pmin_pa = -10000.0\npmax_pa = 10000.0")
+assert WIDE.count("pmin_pa = -10000.0") == 3 and "relative_to" not in WIDE
 INLET_GAUGE, DP = 3000.0, 500.0
 
 

@@ -99,7 +99,9 @@ def sessions(tmp_path_factory) -> dict[str, Path]:
     d = tmp_path_factory.mktemp("sessions")
     return {
         "airfoil": sweep_session(d / "airfoil.taprig", "cambered-balance.toml", -4, 16, 2),
-        "venturi": fan_steps_session(d / "venturi.taprig", RIGS / "venturi-8.toml", (0.3, 0.5, 1.0)),
+        # a simulated blower twice as strong as the rig's stated top speed (10 m/s): full blower saturates a sensor
+        "venturi": fan_steps_session(d / "venturi.taprig", RIGS / "venturi-8.toml", (0.3, 0.5, 1.0),
+                                     query="max_speed=20"),
         "venturi-pitot": fan_steps_session(d / "venturi-pitot.taprig", VENTURI_PITOT, (0.3, 0.4, 0.5),
                                            query=f"venturi_c={SIM_C}"),
         "cylinder": fan_steps_session(d / "cylinder.taprig", RIGS / "cylinder.toml", (0.4, 0.6, 1.0)),
@@ -217,8 +219,9 @@ def _row(table: str, label: str) -> str:
 
 
 def test_points_in_a_state_show_the_state_and_no_number(sessions, tmp_path):
-    # At full blower the simulated venturi's throat sensor saturates: its reference goes, and the point is a
-    # state; at full fan the cylinder's shoulder taps saturate, the reducer leaves them out and q stands.
+    # At full blower (20 m/s, twice the rig's stated top speed) the simulated venturi's throat sensor saturates:
+    # its reference goes, and the point is a state; at full fan the cylinder's shoulder taps saturate, the
+    # reducer leaves them out and q stands.
     pdf = tmp_path / "v.pdf"
     assert handout(sessions["venturi"], "-o", pdf)[0] == 0
     with SessionReader(sessions["venturi"]) as r:

@@ -47,16 +47,17 @@ def _without_split(text: str) -> str:
 
 
 def test_datasheet_parts_by_calibration_level() -> None:
-    # Example rig: ±2.5 kPa (FS 5000 Pa), band 1.5 % FS = offset 1.3 ⊕ span 0.6 ⊕ linearity 0.44 ⊕ rest; each
+    # Example rig: ±1 kPa (FS 2000 Pa), band 0.25 % FS = offset 0.15 ⊕ span 0.15 ⊕ linearity 0.1 ⊕ rest; each
     # part a rectangular bound, u = bound/√3 (JCGM 100:2008 §4.3.7); the span part a gain error (docs/rig-file.md).
     tap = load_rig(RIGS / "naca0012-20tap.toml").sensors["tap"]
-    fs, r3 = 5000.0 / 100.0, math.sqrt(3.0)
-    rest = math.sqrt(1.5**2 - 1.3**2 - 0.6**2 - 0.44**2)
+    assert (tap.accuracy_pct_fs, tap.offset_pct_fs, tap.span_pct_fs, tap.linearity_pct_fs) == (0.25, 0.15, 0.15, 0.1)
+    fs, r3 = 2000.0 / 100.0, math.sqrt(3.0)
+    rest = math.sqrt(0.25**2 - 0.15**2 - 0.15**2 - 0.1**2)
     assert tap.unattributed_pct_fs == pytest.approx(rest, rel=1e-12)
     assert tap.datasheet_uncertainty(CalibrationLevel.NOMINAL) == pytest.approx(
-        (fs * math.sqrt(1.5**2 - 0.6**2) / r3, 0.006 / r3), rel=1e-12)
+        (fs * math.sqrt(0.25**2 - 0.15**2) / r3, 0.0015 / r3), rel=1e-12)
     assert tap.datasheet_uncertainty(CalibrationLevel.ZEROED) == pytest.approx(
-        (fs * math.sqrt(1.5**2 - 0.6**2 - 1.3**2) / r3, 0.006 / r3), rel=1e-12)
+        (fs * math.sqrt(0.25**2 - 0.15**2 - 0.15**2) / r3, 0.0015 / r3), rel=1e-12)
     assert tap.datasheet_uncertainty(CalibrationLevel.SPANNED) == pytest.approx((fs * rest / r3, 0.0), rel=1e-12)
 
 
@@ -69,8 +70,8 @@ def test_a_sensor_without_the_split_keeps_its_whole_band() -> None:
 
 
 def test_parts_larger_than_the_band_are_refused_naming_the_sensor() -> None:
-    text = NACA.replace("offset_pct_fs = 1.3", "offset_pct_fs = 1.45", 1)
-    message = r"sensors\.tap: .*combine in quadrature to 1\.6\d* % FS, more than accuracy_pct_fs = 1\.5"
+    text = NACA.replace("offset_pct_fs = 0.15", "offset_pct_fs = 0.22", 1)  # the first: sensors.probe
+    message = r"sensors\.probe: .*combine in quadrature to 0\.28\d* % FS, more than accuracy_pct_fs = 0\.25"
     with pytest.raises(RigError, match=message):
         parse_rig(text, "split.toml")
 

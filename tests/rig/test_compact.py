@@ -77,22 +77,22 @@ def test_two_taps_on_one_channel_in_a_table_name_the_second_row() -> None:
 
 
 def test_a_group_that_overlaps_a_channel_names_the_member() -> None:
-    text = _sub(NACA, "index = 22\n", "index = 9\n")  # baro put on an index of the tap group
-    assert "channels[3].index: device index already used by an earlier channel (got 9)" in _problems(text)
+    text = _sub(NACA, "index = 22\n", "index = 9\n")  # baro put on an index of the aft upper tap group
+    assert "channels[6].index: device index already used by an earlier channel (got 9)" in _problems(text)
     text = _sub(NACA, "index = 1\n", "index = 2\n")  # p_total on the group's first index: the group is named
-    assert "channels[2] (1st of 20: index 2, 'p02').index: device index already used by an earlier channel (got 2)" in _problems(text)
+    assert "channels[2] (1st of 4: index 2, 'p02').index: device index already used by an earlier channel (got 2)" in _problems(text)
 
 
 def test_a_shared_key_of_a_group_is_reported_once() -> None:
-    text = _sub(NACA, 'count = 20\nname = "p{index:02}"\nencoding = "u16"', 'count = 20\nname = "p{index:02}"\nencoding = "u17"')
+    text = _sub(NACA, 'count = 4\nname = "p{index:02}"\nencoding = "u16"', 'count = 4\nname = "p{index:02}"\nencoding = "u17"')
     assert _problems(text) == ["channels[2].encoding: expected one of i16, u16, i32, u32, f32 (got 'u17')"]
 
 
 @pytest.mark.parametrize("old,new,expected", [
     ('name = "p{index:02}"', 'name = "tap"', "channels[2].name: the names of a group must differ"),
-    ("count = 20", "count = 0", "channels[2].count: expected a whole number of channels, 1 to 64 (got 0)"),
-    ("count = 20", 'count = "20"', "channels[2].count: expected a whole number"),
-    ('name = "p{index:02}"', 'name = ["a", "b"]', "channels[2].name: 2 names for count = 20 channels"),
+    ("count = 4", "count = 0", "channels[2].count: expected a whole number of channels, 1 to 64 (got 0)"),
+    ("count = 4", 'count = "4"', "channels[2].count: expected a whole number"),
+    ('name = "p{index:02}"', 'name = ["a", "b"]', "channels[2].name: 2 names for count = 4 channels"),
     ("[taps]\nname ", '[taps]\nfile = "t.csv"\nname ', "taps.file: give the taps in a file or as arrays, not both"),
     ("surface = [", "colour = 1\nsurface = [", "taps.colour: unknown key"),
 ])

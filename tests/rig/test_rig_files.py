@@ -34,7 +34,7 @@ def test_example_rig_checks_clean(path: Path, capsys) -> None:
 
 def test_units_are_converted_once_to_si() -> None:
     rig = load_rig(RIGS / "cambered-balance.toml")
-    assert rig.geometry.chord == pytest.approx(0.125)  # chord_mm = 125
+    assert rig.geometry.chord == pytest.approx(0.100)  # chord_mm = 100
     alpha = next(a for a in rig.actuators if a.name == "alpha")
     assert (alpha.min, alpha.max) == pytest.approx((math.radians(-8), math.radians(16)))
     assert alpha.to_device(alpha.max) == pytest.approx(16.0)  # boards take degrees (PROTOCOL.md §3)
@@ -72,16 +72,16 @@ def _replace(old: str, new: str) -> str:
 BROKEN = [
     ("toml-syntax", _replace('kind = "airfoil"', 'kind = "airfoil'), "not valid TOML"),
     ("missing-key", _replace('name = "NACA 2412, 9 taps, lift balance"\n', ""), "name: required key is missing"),
-    ("misspelt-key", _replace("chord_mm = 125.0", "cord_mm = 125.0"), "geometry.cord_mm: unknown key"),
-    ("wrong-type", _replace("adc_bits = 12", 'adc_bits = "twelve"'), "sensors.tap.adc_bits"),
+    ("misspelt-key", _replace("chord_mm = 100.0", "cord_mm = 100.0"), "geometry.cord_mm: unknown key"),
+    ("wrong-type", _replace("adc_bits = 24", 'adc_bits = "twenty-four"'), "sensors.load_cell.adc_bits"),
     ("tap-on-missing-channel", _replace('channel = "u3"', 'channel = "u9"'), "taps[2].channel"),
     ("duplicate-tap", _replace('name = "U3"', 'name = "U2"'), "taps[2].name"),
     ("duplicate-channel-index", _replace("index = 7", "index = 6"), "channels[7].index"),
     ("x_c-outside", _replace("x_c = 0.25", "x_c = 1.3"), "taps[3].x_c"),
     ("tap-off-surface", _replace("y_c = 0.0767", "y_c = 0.12"), "taps[3].y_c"),
-    ("unknown-sensor-kind", _replace('kind = "ratiometric"', 'kind = "ratiometrc"'), "sensors.tap.kind"),
-    ("range-min-above-max", _replace("range_pa = [-2500.0, 2500.0]", "range_pa = [2500.0, -2500.0]"), "sensors.tap.range_pa"),
-    ("negative-chord", _replace("chord_mm = 125.0", "chord_mm = -125.0"), "geometry.chord_mm"),
+    ("unknown-sensor-kind", _replace('kind = "digital_bridge"', 'kind = "digital_brige"'), "sensors.tap.kind"),
+    ("range-min-above-max", _replace("pmin_pa = -2000.0\npmax_pa = 2000.0", "pmin_pa = 2000.0\npmax_pa = -2000.0"), "sensors.tap"),
+    ("negative-chord", _replace("chord_mm = 100.0", "chord_mm = -100.0"), "geometry.chord_mm"),
     ("unknown-naca", _replace('naca = "2412"', 'naca = "24x2"'), "section: cannot build the section shape"),
     ("reference-missing", _replace('pitot = "pitot_dp"  ', 'pitot = "pitot"  '), "reference.pitot"),
     ("actuator-safe-outside", _replace("safe_deg = 0.0", "safe_deg = 30.0"), "actuators[1].safe_deg"),
@@ -107,11 +107,11 @@ def test_broken_rig_exits_1_naming_the_key(text: str, key: str, tmp_path: Path, 
 
 
 def test_every_error_is_reported_not_just_the_first() -> None:
-    text = BASE.replace("chord_mm = 125.0", "chord_mm = -1.0").replace("adc_bits = 12", "adc_bits = 2").replace("x_c = 0.25", "x_c = 2")
+    text = BASE.replace("chord_mm = 100.0", "chord_mm = -1.0").replace("adc_bits = 24", "adc_bits = 2").replace("x_c = 0.25", "x_c = 2")
     with pytest.raises(RigError) as info:
         parse_rig(text, "three.toml")
     keys = {issue.key for issue in info.value.issues}
-    assert {"geometry.chord_mm", "sensors.tap.adc_bits", "taps[3].x_c"} <= keys
+    assert {"geometry.chord_mm", "sensors.load_cell.adc_bits", "taps[3].x_c"} <= keys
     assert str(info.value).startswith("three.toml: 3 problems")
 
 
@@ -149,7 +149,7 @@ def test_coordinate_csv_with_a_bad_line_names_it(tmp_path: Path) -> None:
 
 def test_check_reports_each_file(tmp_path: Path, capsys) -> None:
     bad = tmp_path / "bad.toml"
-    bad.write_text(BASE.replace("chord_mm = 125.0", "chord_mm = 0.0"), encoding="utf-8")
+    bad.write_text(_replace("chord_mm = 100.0", "chord_mm = 0.0"), encoding="utf-8")
     assert main(["check", str(RIGS / "cylinder.toml"), str(bad)]) == 1
     captured = capsys.readouterr()
     assert "rig 'cylinder-13tap'" in captured.out and "geometry.chord_mm" in captured.err

@@ -271,3 +271,15 @@ def test_an_echoed_device_frame_gets_no_reply_and_does_not_feed_the_watchdog(hos
     h.device.receive(encode_frame(0xC0, 2, b""))  # a host → device type it does not know
     assert [(r.req, r.code) for r in h.step(0.01) if hasattr(r, "code")] == [(0, ReplyCode.UNKNOWN_COMMAND)]
     assert h.device.host_frames == fed + 1
+
+
+def test_full_fan_never_passes_the_top_speed_the_rig_states(rigs):
+    # the simulated stream at full fan: 20 m/s in air, 0.5 m/s in water, capped at [operating] max_speed_m_s
+    from taprig.sim.device import default_max_speed
+
+    venturi, naca, water = rigs("venturi-8"), rigs("naca0012-20tap"), rigs("water-hydrofoil")
+    assert venturi.operating.max_speed < 20.0 and default_max_speed(venturi) == venturi.operating.max_speed
+    assert naca.operating.max_speed > 20.0 and default_max_speed(naca) == 20.0
+    assert default_max_speed(water) == min(0.5, water.operating.max_speed)
+    no_top = naca.model_copy(update={"operating": naca.operating.model_copy(update={"max_speed": None})})
+    assert default_max_speed(no_top) == 20.0

@@ -43,14 +43,19 @@ def test_venturi_stations_follow_bernoulli_upstream_and_recover_partly(host, rig
     speed = 8.0
     h = host("venturi-8", max_speed=speed)
     values = _steady(h)
-    layout = rigs("venturi-8").tap_layout()
-    p = np.array([values[h.device.rig.channel(int(c)).name].mean() for c in layout.channels])
+    rig = rigs("venturi-8")
+    layout = rig.tap_layout()
+    # the inlet station reads against the room, every other station against the inlet's line: p_i − p_1 directly
+    inlet = rig.channel(int(layout.channels[0])).name
+    assert all(rig.channel(int(c)).relative_to == inlet for c in layout.channels[1:])
+    p = np.array([0.0] + [values[rig.channel(int(c)).name].mean() for c in layout.channels[1:]])
     opts = h.device.options
     q = 0.5 * _air_density(opts.ambient_c, opts.ambient_pa, opts.humidity) * speed**2
-    cp = (p - p[0]) / q
+    cp = p / q
     ideal = 1.0 - (layout.area[0] / layout.area) ** 2  # continuity + Bernoulli (docs/REFERENCES.md, venturi)
     throat = int(np.argmin(layout.area))
-    lsb = 4000.0 / (0.8 * 16383)  # 14-bit bridge, 10-90 % of ±2000 Pa: one count [Pa]
+    # one count of the widest station sensor up to the throat [Pa] (14-bit bridge, 10-90 % window)
+    lsb = max(rig.sensor_of(int(c)).slope for c in layout.channels[: throat + 1])
     np.testing.assert_allclose(cp[: throat + 1], ideal[: throat + 1], rtol=2e-4, atol=2 * lsb / q)
     assert int(np.argmin(p)) == throat  # the narrowest station has the lowest pressure (common practice)
     # downstream the diffuser recovers only part of the drop (recovery below 100 %, common practice)
@@ -160,6 +165,6 @@ def test_water_channel_uses_the_density_of_water(host, rigs):
     rig = rigs("water-hydrofoil")
     h = host("water-hydrofoil", max_speed=0.5)
     values = _steady(h, fan=0.8, angle_deg=0.0)
-    q = values[rig.reference.total].mean() - values[rig.reference.static].mean()
+    q = values[rig.reference.pitot].mean()  # one differential part across the pitot's total and static ports
     rho = PropsSI("D", "T", rig.fluid.temperature, "P", 101325.0, "Water")  # IAPWS-95 via CoolProp
     np.testing.assert_allclose(q, 0.5 * rho * 0.4**2, rtol=0.01)

@@ -47,9 +47,9 @@ def _sweep(rig, walls: bool, angles_deg, corrected: bool) -> np.ndarray:
 
 @pytest.fixture(scope="module")
 def at_0_3(rigs):
-    """naca0012-20tap (150 mm chord) in a 500 mm tunnel, c/h = 0.3: walled sweep corrected, uncorrected, and the
+    """naca0012-20tap (120 mm chord) in a 400 mm tunnel, c/h = 0.3: walled sweep corrected, uncorrected, and the
     free-air simulator at the corrected angles."""
-    rig = _with_height(rigs("naca0012-20tap"), 0.5)
+    rig = _with_height(rigs("naca0012-20tap"), 0.4)
     walled = _sweep(rig, True, ANGLES, corrected=True)
     raw = _sweep(rig, True, ANGLES, corrected=False)
     free = _sweep(rig, False, np.degrees(walled[:, 0]), corrected=False)
@@ -80,7 +80,7 @@ def test_corrected_points_and_the_stall_step_are_free_air(at_0_3):
 
 def test_walls_only_where_the_rig_states_a_closed_section(rigs):
     rig = rigs("naca0012-20tap")
-    assert walled_chord_ratio(rig, SimOptions()) == pytest.approx(0.5)
+    assert walled_chord_ratio(rig, SimOptions()) == pytest.approx(0.4)  # 120 mm chord, 300 mm tunnel
     assert build_plant(rig, SimOptions()).airfoil.walls is not None
     # free air: the option off, an open jet, no tunnel height stated, a water channel's free surface
     assert walled_chord_ratio(rig, SimOptions(walls=False)) is None

@@ -89,6 +89,15 @@ def to_wire(counts: np.ndarray, layout: SampleLayout) -> np.ndarray:
     return wire
 
 
+def default_max_speed(rig) -> float:
+    """Stream speed at full fan when the options give none [m/s]: 20 m/s in air, 0.5 m/s in water, but never past
+    the fan's top speed the rig file states (``[operating] max_speed_m_s``): a simulated bench should not blow
+    harder than the one it stands for."""
+    speed = 0.5 if rig.fluid.medium is Medium.WATER else 20.0
+    top = rig.operating.max_speed
+    return min(speed, top) if top else speed
+
+
 class SimulatedDevice:
     """A simulated board for ``rig`` with ``options`` (see ``docs/simulator.md``); powered up at time 0.
 
@@ -118,7 +127,7 @@ class SimulatedDevice:
         fault_rng = np.random.default_rng(fault_seq)
         self.faults = LinkFaults(fault_rng, options.ber, options.burst_rate, options.burst_frames)
         self._drift = 1.0 + options.clock_ppm * 1e-6
-        self._max_speed = options.max_speed or (0.5 if rig.fluid.medium is Medium.WATER else 20.0)
+        self._max_speed = options.max_speed or default_max_speed(rig)
         self._resets = sorted(int(t * _NS) for t in options.reset)
         self._disconnect_ns = int(options.disconnect * _NS) if options.disconnect >= 0 else _NEVER
         self._out = bytearray()  # deleting from the front of a bytearray is cheap, so byte-wise readers are too

@@ -155,7 +155,8 @@ class SimOptions:
     walls: bool = _option(True, _switch, "floor and ceiling of a closed test section round an airfoil (0 = free air)")
     stall_deg: float = _option(12.0, _nonnegative, "critical angle of the airfoil above zero lift [deg]")
     venturi_c: float = _option(1.0, _discharge, "discharge coefficient of a simulated venturi (1 = ideal)")
-    max_speed: float = _option(0.0, _nonnegative, "stream speed at full fan [m/s] (0 = 20 for air, 0.5 for water)")
+    max_speed: float = _option(0.0, _nonnegative, "stream speed at full fan [m/s] (0 = 20 for air, 0.5 for water, "
+                                                   "at most the rig's max_speed_m_s)")
     fan_tau: float = _option(1.5, _nonnegative, "time constant of the stream's response to the fan [s]")
     fan_rate: float = _option(0.5, _nonnegative, "slew-rate limit of the fan [fraction of its range per s] (0 = none)")
     angle_rate_deg: float = _option(30.0, _nonnegative, "slew-rate limit of the angle servo [deg/s] (0 = none)")

@@ -95,7 +95,8 @@ def _assumptions(rig: Rig) -> tuple[str, ...]:
 
 
 def _prediction_lines(rig: Rig) -> list[str]:
-    """u(q), u(Cp), u(Cl) at the rig's design speed (taprig.sim.predict), with a warning for each shortfall."""
+    """u(q), u(Cp) and what the rig's kind computes (u(Cl), u(Cd) or the mass flow's u) at the rig's design speed
+    (taprig.sim.predict, which asks the reduction), with a warning for each shortfall."""
     from taprig.reduce import ReduceError
     from taprig.sim.predict import predict
 
@@ -107,18 +108,33 @@ def _prediction_lines(rig: Rig) -> list[str]:
         def one(x: float) -> str:  # NaN: the 95 % interval reaches "no flow" (q itself uncertain past zero)
             return f"{x:{fmt}}" if math.isfinite(x) else "unbounded (q may be zero)"
         return f"{one(nominal)} nominal, {one(zeroed)} after a wind-off zero"
-    lines = [f"predicts at the design speed {p.speed:g} m/s (α {math.degrees(p.alpha_rad):g}°, datasheet bands, "
-             f"standard uncertainties): q {p.q:.4g} Pa, u(q) {pair(p.u_q, p.u_q_zeroed, '.3g')} Pa"]
+    at = f"α {math.degrees(p.alpha_rad):g}°, " if p.has_angle else ""
+    lines = [f"predicts at the design speed {p.speed:g} m/s ({at}datasheet bands, standard uncertainties): "
+             f"q {p.q:.4g} Pa, u(q) {pair(p.u_q, p.u_q_zeroed, '.3g')} Pa"]
+    shown = []
     if math.isfinite(p.u_cp_zeroed):
         lines.append(f"  largest u(Cp) {pair(p.u_cp, p.u_cp_zeroed, '.3f')}")
+        shown.append("u(Cp)")
     if math.isfinite(p.u_cl_zeroed):
         lines.append(f"  u(Cl) {pair(p.u_cl, p.u_cl_zeroed, '.3f')}")
-    if math.isfinite(p.u_cp_zeroed) or math.isfinite(p.u_cl_zeroed):
+        shown.append("u(Cl)")
+    if math.isfinite(p.u_cd_zeroed):
+        lines.append(f"  u(Cd) {pair(p.u_cd, p.u_cd_zeroed, '.4f')}")
+        shown.append("u(Cd)")
+    if math.isfinite(p.mass_flow) and math.isfinite(p.u_mass_flow_zeroed):
+        u_flow = pair(p.u_mass_flow * 1e3, p.u_mass_flow_zeroed * 1e3, ".3g")
+        lines.append(f"  mass flow {p.mass_flow * 1e3:.4g} g/s (ISO 5167-4), u {u_flow} g/s")
+    if p.held_exact:
+        cp = f", largest u(Cp) {p.u_cp_sensors:.3f}" if math.isfinite(p.u_cp_sensors) else ""
+        lines.append(f"  the sensors' own share after a zero ({'; '.join(p.held_exact)} held exact): "
+                     f"u(q) {p.u_q_sensors:.3g} Pa{cp}")
+    if shown:
+        what = ", ".join(shown)
         methods = {"nominal": p.method, "after a zero": p.method_zeroed}
         if len(set(methods.values())) == 1:
-            lines.append(f"  u(Cp), u(Cl) propagated by {p.method}")
+            lines.append(f"  {what} propagated by {p.method}")
         else:
-            lines += [f"  u(Cp), u(Cl) {when} propagated by {m}" for when, m in methods.items()]
+            lines += [f"  {what} {when} propagated by {m}" for when, m in methods.items()]
     lines += [f"WARNING: {w}" for w in p.warnings]
     return lines
 
