@@ -10,7 +10,7 @@ import math
 import numpy as np
 
 from taprig.analysis import ISO_MACHINED
-from taprig.analysis.wording import as_number, pm
+from taprig.analysis.wording import as_number, pm, reynolds
 from taprig.reduce.curves import THIN_AIRFOIL_SLOPE
 from taprig.report.content import PointView, SessionContent
 from taprig.report.style import BALANCE, DOWN, GREY, INK, LOWER, ONE_WAY, THEORY, UP, UPPER, VERMILION, cycle, marker_only
@@ -424,7 +424,10 @@ def draw_comparison(ax, contents: list[SessionContent], align: str) -> None:
         names.add(name)
         x = comparison_x(c, align)
         re = np.array([as_number(p.record.get("re")) for p in c.shown])
-        re_text = f", Re ≈ {np.nanmedian(re):.3g}" if np.isfinite(re).any() else ""
+        re_text = ""
+        if np.isfinite(re).any():  # the Re of the session's median point, with its uncertainty
+            k = int(np.nanargmin(np.abs(re - np.nanmedian(re))))
+            re_text = f", Re {reynolds(re[k], c.shown[k].record.get('u_re'))}"
         _errorbar(ax, x, y, np.where(np.isfinite(u), u, np.nan), cycle(i), label=f"{c.path.name}{re_text}")
     ax.set_xlabel("α commanded [°]" if align == "alpha" else "q [Pa]")
     ax.set_ylabel(" / ".join(sorted(names)))
