@@ -1,6 +1,6 @@
 """A sweep is timed in device time: the same seed gives the same points in real time and in compressed time.
 
-The same short plan (a fan setting, three angles, short settle and average, a quick fan) runs twice through the
+The same short plan (a fan setting, three angles through the servo's safe value, short settle and average, a quick fan) runs twice through the
 real runtime on the simulated board with one seed: once at ``speed=1`` (the board's clock follows the wall
 clock; about six seconds) and once at ``speed=max`` (compressed time). Each point must average the same scans
 (the same device-time window, the same number of scans, the same scan times) and give the same values. The
@@ -44,7 +44,8 @@ def run(tmp_path: Path, speed: str) -> tuple[list[dict], list[dict], list[dict]]
         clock = Timeline.begin(acq, 20)
         clock.wait(0.3)
         acq.zero(0.3, window=clock.window(0.3))
-        plan = SweepPlan("angle", tuple(np.radians([0.0, 2.0, 4.0])), (0.6,))
+        # −2° to 0° moves the servo to its safe value mid-sweep: that move must wait for its time like the others
+        plan = SweepPlan("angle", tuple(np.radians([-2.0, 0.0, 2.0])), (0.6,))
         run_plan(acq, plan, settle_s=0.2, average_s=0.3, spin_up_s=0.5, start_ns=clock.cursor,
                  steady=SteadyCriteria(hold_s=0.6, timeout_s=10.0))
     finally:

@@ -319,6 +319,7 @@ class Acquisition:
                 return self.shutdown_report
             self._shutting_down.set()
             self._stream = None  # no stream restart after a board reset from here on
+            self.pace(None)  # the safe values act at once on a paced board, and supersede any move still waiting
             link_up = self.link.connected or self._await_link(RELINK_WAIT_S)
             outcomes = []
             if self._thread.ident is not None:  # the run was opened (a run that never opened moved nothing)
@@ -497,7 +498,8 @@ class Acquisition:
         """Drive an actuator (value in SI: radians for an angle) and record the setpoint as an event.
 
         ``at_t_ns``: the device time at which a paced run's command acts (the horizon it set), recorded with the
-        setpoint (with ``late`` when scans past it had arrived before the command went out)."""
+        setpoint (with ``late`` when scans past it had arrived before the command went out). Without it, on a
+        paced run, the horizon is cleared first: a command from anyone else (the operator's page) acts at once."""
         actuator = next((a for a in self.rig.actuators if a.name == name), None)
         if actuator is None:
             raise AcquisitionError(f"rig {self.rig.id!r} has no actuator {name!r}; it has "
@@ -509,6 +511,8 @@ class Acquisition:
             self._check_host_stall()
             self.check_running()
         previous = self.setpoints[name]
+        if at_t_ns is None:
+            self.pace(None)
         timing = None
         if at_t_ns is not None:
             newest = self.newest_t_ns

@@ -11,11 +11,12 @@ Time: the board's own clock is its crystal, ``clock_ppm`` fast of true time; sca
 the board's clock. The watchdog, the scheduled resets, the disconnect and write stalls run on true time.
 
 The horizon (:meth:`SimulatedDevice.set_horizon`): a host that paces the board in its own device time (a sweep)
-names the board-clock time at which its next command acts. A ``START`` or a setpoint other than an actuator's
-safe value that arrives before then is acknowledged at once and acts at the horizon, so the board's response
-depends on the device times the host chose, not on when its bytes happened to arrive (in real time a wall-clock
-moment, in compressed time wherever the reader had got to). Safe values, ``STOP``, ``RESET`` and heartbeats act at
-once, and a safe value, a ``STOP``, the watchdog or a reboot drops what was waiting.
+names the board-clock time at which its next command acts. A ``START`` or a setpoint that arrives before then is
+acknowledged at once and acts at the horizon, so the board's response depends on the device times the host chose,
+not on when its bytes happened to arrive (in real time a wall-clock moment, in compressed time wherever the reader
+had got to). ``STOP``, ``RESET`` and heartbeats act at once; a ``STOP``, the watchdog or a reboot drops what was
+waiting, and so does a setpoint that acts at once (no horizon) for its actuator. The host clears the horizon
+before anything that must act now (its safe values at the end of a run, an operator's command).
 """
 
 from __future__ import annotations
@@ -205,7 +206,7 @@ class SimulatedDevice:
         return int(self._dev_ns(self._now))
 
     def set_horizon(self, board_ns: float | None) -> None:
-        """Let a ``START`` or a non-safe setpoint that arrives from now on act at board-clock time ``board_ns``
+        """Let a ``START`` or a setpoint that arrives from now on act at board-clock time ``board_ns``
         [ns since boot] (module docstring); None: every command acts on arrival. Commands already waiting keep
         their time."""
         self._horizon_dev = None if board_ns is None else float(board_ns)
@@ -431,11 +432,10 @@ class SimulatedDevice:
             return
         if not self.held:  # a safe value sent in the hold is taken, and the hold goes on
             self._safe = False
-        if value == np.float32(act.info.safe):  # a safe value acts at once, and cancels a move still waiting
-            self._drop_deferred(msg.actuator_id)
-        elif self._defer(msg):
+        if not self.held and self._defer(msg):  # in the safe hold nothing waits: a safe value acts at once
             self._reply(msg.req, ReplyCode.OK)
             return
+        self._drop_deferred(msg.actuator_id)  # acting now: a move still waiting for this actuator is superseded
         self._move(act, msg.value)
         self._reply(msg.req, ReplyCode.OK)
 
