@@ -346,3 +346,108 @@ def test_a_sweep_by_hand_from_the_page(browser, tmp_path):
     finally:
         page.close()
         assert "Traceback" not in end(live)
+
+
+VENTURI_PITOT = ROOT / "tests" / "analysis" / "venturi-pitot.toml"
+SIM_C = 0.97  # the simulated venturi's discharge coefficient, set by the port's venturi_c (docs/simulator.md)
+
+
+def venturi_live(tmp_path: Path) -> tuple[subprocess.Popen, str]:
+    live = spawn("live", "--rig", str(VENTURI_PITOT), "--port",
+                 f"sim://?seed=3&speed=max&watchdog_ms=0&venturi_c={SIM_C}", "--no-browser", "--http-port", "0",
+                 "--sessions", str(tmp_path), "--quiet", cwd=tmp_path)
+    return live, first_lines(live, 2)[0].split(": ", 1)[1]
+
+
+def shown_value(cell: str) -> tuple[float, float, int]:
+    """``value ± u`` as shown: the value, the uncertainty and the decimals the value is shown to."""
+    value, u = cell.split(" ± ")
+    return float(value), float(u), len(value.split(".")[1]) if "." in value else 0
+
+
+def test_a_fan_sweep_of_the_venturi_from_the_page_shows_the_sessions_analysis(browser, tmp_path):
+    from taprig.analysis import analyse_points
+    from taprig.rig import load_rig
+
+    live, url = venturi_live(tmp_path)
+    page = Page(browser, url)
+    try:
+        page.until("() => window.taprig.frames > 2")
+        # a venturi has only its fan: the page offers a fan sweep, in the fan's own unit, with its limits and safe value
+        assert page.page.is_visible("#sw-k-fan-l") and not page.page.is_visible("#sw-k-angle-l")
+        assert not page.page.is_visible("#sw-k-nested-l") and not page.page.is_visible("#sw-angle-part")
+        assert "safe (off) value 0" in page.text("#sw-fan-limits") and page.text("#sw-fan-unit") == "duty"
+        assert page.page.is_visible("#sw-fan-caution") and "guards on" in page.text("#sw-fan-caution")
+        for typed, words in (("0,0.5", "safe (off) value"), ("0.5,1.2", "outside the fan's range")):
+            page.page.fill("#sw-fans", typed)
+            page.page.click("#b-sweep")
+            page.until(f"() => (document.getElementById('err-fans') || {{}}).textContent?.includes({words!r})", 30)
+        assert page.page.get_attribute("#sw-fans", "aria-invalid") == "true"
+        page.page.click("#b-record")
+        page.until("() => document.getElementById('st-rec').textContent.includes('REC')")
+        for field, value in (("#sw-fans", "0.4:0.7:0.15"), ("#sw-settle", "0.3"), ("#sw-avg", "0.5"), ("#sw-spin", "2")):
+            page.page.fill(field, value)
+        page.page.click("#b-sweep")
+        assert page.page.query_selector("#err-fans") is None  # the refusal's words went with the refused value
+        page.until("() => document.getElementById('sweep-state').textContent === 'sweep done'", 300)
+        page.until("() => document.querySelectorAll('#results tbody tr').length === 3")
+        page.shot("fan-sweep-venturi")
+        cells = page.page.eval_on_selector_all("#results tbody tr td:nth-child(6)", "tds => tds.map(t => t.textContent)")
+        fans = page.page.eval_on_selector_all("#results tbody tr td:nth-child(3)", "tds => tds.map(t => t.textContent)")
+        lines = page.text("#results-lines")
+        page.page.click("#b-record")
+        page.until("() => document.getElementById('st-rec').textContent === 'not recording'")
+        assert "safe value" in page.text("#now-blower")  # the sweep ran the fan: back to its safe value
+        assert page.errors == [] or all("status of 400" in e for e in page.errors)  # the two refusals above
+    finally:
+        page.close()
+        assert "Traceback" not in end(live)
+    session = sorted(tmp_path.glob("*.taprig"))[-1]
+    with SessionReader(session) as reader:
+        records = [p.data for p in reader.points()]
+    dc = analyse_points(records, load_rig(VENTURI_PITOT)).discharge
+    assert fans == ["0.400", "0.550", "0.700"] and len(records) == 3
+    for cell, c, u in zip(cells, dc.c, dc.u_c):  # each C ± u shown is the analysis's of the recorded point
+        value, shown_u, digits = shown_value(cell)
+        assert abs(value - c) <= 0.5 * 10 ** -digits + 1e-12 and abs(shown_u - u) <= 0.5 * 10 ** -digits + 1e-12
+    assert "C =" in lines or "C " in lines
+    assert abs(dc.mean_c - SIM_C) <= 3 * dc.u_mean_c  # the simulated venturi's C, within its stated uncertainty
+
+
+def test_an_interrupted_sweep_resumes_from_the_page(browser, tmp_path):
+    live, url = venturi_live(tmp_path)
+    page = Page(browser, url)
+    try:
+        page.until("() => window.taprig.frames > 2")
+        page.page.click("#b-record")
+        page.until("() => document.getElementById('st-rec').textContent.includes('REC')")
+        for field, value in (("#sw-fans", "0.4:0.7:0.1"), ("#sw-settle", "0.3"), ("#sw-avg", "0.5"), ("#sw-spin", "2")):
+            page.page.fill(field, value)
+        page.page.click("#b-sweep")
+        page.until("() => /— 2 taken/.test(document.getElementById('sweep-state').textContent)", 300)
+        page.page.click("#b-sweep-stop")
+        page.until("() => document.getElementById('sweep-state').textContent.startsWith('sweep stopped by the operator')",
+                   120)
+        page.page.click("#b-record")
+        page.until("() => document.getElementById('st-rec').textContent === 'not recording'")
+        page.page.click("#resume-refresh")
+        page.until("() => document.querySelectorAll('#resumable tbody tr').length === 1")
+        first = sorted(tmp_path.glob("*.taprig"))[-1]
+        with SessionReader(first) as reader:
+            taken = len(reader.points())
+        page.page.click("#resumable button.resume")
+        said = page.text("#resume-text")
+        # the page says which point it takes next before the operator confirms
+        assert f"point {taken + 1} of 4" in said and f"blower → {0.4 + 0.1 * taken:.3f} duty" in said, said
+        page.shot("sweep-resume")
+        page.page.uncheck("#resume-zero")  # this simulated pitot reads its offset as a little flow until zeroed
+        page.page.click("#resume-go")
+        page.until("() => document.getElementById('sweep-state').textContent === 'sweep done'", 300)
+        page.until("() => document.querySelectorAll('#results tbody tr').length === 4")
+        carried = page.page.eval_on_selector_all("#results tbody tr td:nth-child(2)", "tds => tds.map(t => t.textContent)")
+        assert [c.endswith("(carried)") for c in carried] == [True] * taken + [False] * (4 - taken)
+        page.until("() => document.querySelectorAll('#resumable tbody tr').length === 0")
+        assert page.errors == []
+    finally:
+        page.close()
+        assert "Traceback" not in end(live)

@@ -261,11 +261,11 @@ def sweep_results(records, rig, plan=None) -> dict:
     discharge coefficient against Re_D with its mean and ISO 5167-4's range, and the lift curve of each fan setting
     of an angle sweep (one per setting of a nested sweep). Where an analysis cannot be made, ``reasons`` says why
     (name → sentence). Nothing is computed here beyond choosing the records of each fan setting."""
-    from taprig.analysis import ISO_MACHINED, analyse_points
+    from taprig.analysis import ISO_MACHINED, analyse_points, wording
 
     records = [r for r in records if isinstance(r, dict)]
     out: dict = {"n": len(records), "kind": rig.kind.value, "inner": getattr(plan, "inner", None),
-                 "points": [], "discharge": None, "lift": [], "reasons": {}}
+                 "points": [], "discharge": None, "lift": [], "reasons": {}, "lines": []}
     if not records:
         return out
     a = analyse_points(records, rig)
@@ -281,11 +281,14 @@ def sweep_results(records, rig, plan=None) -> dict:
             "iso": {"c": ISO_MACHINED.c, "relative_uncertainty": ISO_MACHINED.relative_uncertainty,
                     "re_d": list(ISO_MACHINED.re_d), "beta": list(ISO_MACHINED.beta)},
             "iso_outside": list(a.iso_outside)}
+    if rig.kind.value == "venturi":
+        out["lines"] = list(wording.venturi_lines(a, ISO_MACHINED))
     for i in range(len(t)):
         c = c_of.get(i)
         out["points"].append({
             "number": i + 1, "label": t.labels[i], "leg": t.leg[i] or None, "fan": num(t.fan[i]),
-            "alpha_deg": num(math.degrees(t.alpha_set_rad[i])), "q_pa": pair(t.q_pa[i], t.u_q_pa[i]),
+            "alpha_deg": None if records[i].get("alpha_rad") is None else num(math.degrees(t.alpha_set_rad[i])),
+            "q_pa": pair(t.q_pa[i], t.u_q_pa[i]),
             "re": pair(t.re[i], t.u_re[i]), "cl": pair(t.cl[i], t.u_cl[i]), "cd_p": pair(t.cd_p[i], t.u_cd_p[i]),
             "c": None if c is None else pair(c[0], c[1]),
             "carried": records[i].get("carried_from") is not None})
@@ -297,6 +300,9 @@ def sweep_results(records, rig, plan=None) -> dict:
                                                             and math.isclose(float(r["fan"]), fan))]
             g = a if len(groups) == 1 else analyse_points(chosen, rig)
             fit, stall = g.fit, g.stall
+            prefix = f"fan {fan:.3g}: " if len(groups) > 1 else ""
+            out["lines"] += [prefix + line for line in wording.lift_lines(g)] if fit is not None else \
+                [f"{prefix}no lift curve: {g.reasons.get('fit', 'too few points')}"]
             re = g.table.re[np.isfinite(g.table.re)]
             out["lift"].append({
                 "fan": fan, "points": len(chosen), "re": [num(re.min()), num(re.max())] if re.size else None,
@@ -309,6 +315,7 @@ def sweep_results(records, rig, plan=None) -> dict:
                 "why": g.reasons.get("fit") if fit is None else g.reasons.get("stall")})
     elif rig.kind.value == "airfoil":
         reasons["fit"] = "a fan sweep at one angle: Cl against Re (no lift slope from one angle)"
+        out["lines"] = list(wording.reynolds_lines(a))
     out["reasons"] = {k: str(v) for k, v in reasons.items()}
     out["thin_airfoil_slope_per_deg"] = THIN_AIRFOIL_SLOPE * math.pi / 180
     return out

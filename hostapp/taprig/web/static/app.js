@@ -21,6 +21,7 @@ window.taprig = stats;
 let rig = null, role = null, lastFrame = null, charts = {}, unit = localStorage.getItem("taprig.unit") || "Pa";
 let trend = [];          // [t_s, q, cl] rows
 let pointsVersion = -1;
+let sweepVersion = null;  // the page sweep's progress last drawn (points taken, running)
 
 // ---- numbers with their uncertainty -------------------------------------------------------------------------
 function sig(u) { return u > 0 && isFinite(u) ? Math.max(0, 1 - Math.floor(Math.log10(u))) : 3; }
@@ -54,7 +55,7 @@ async function api(path, body) {
   let resp;
   try { resp = await fetch(path, opts); } catch (e) { throw new Error("taprig does not answer (is it still running?)"); }
   const data = await resp.json().catch(() => ({ error: `unexpected answer (${resp.status})` }));
-  if (!resp.ok) throw new Error(data.error || `refused (${resp.status})`);
+  if (!resp.ok) { const err = new Error(data.error || `refused (${resp.status})`); err.field = data.field; throw err; }
   return data;
 }
 function say(text, error = false) { const m = $("message"); m.textContent = text; m.classList.toggle("error", error); }
@@ -325,8 +326,9 @@ function drawControls(f) {
   $("b-record").textContent = f.recording && f.recording.on ? "Stop recording" : "Start recording";
   $("b-record").disabled = !rig.can_record;
   const sw = f.sweep || {};
-  $("sweep-state").textContent = sw.running ? `${sw.done} of at most ${sw.total} points` : (sw.message || "");
+  $("sweep-state").textContent = sw.running ? sweepProgress(sw) : (sw.message || "");
   $("b-sweep").disabled = !!sw.running; $("b-sweep-stop").disabled = !sw.running;
+  $("resume-go").disabled = !!sw.running;
   const ask = sw.asking;
   $("sw-hand").hidden = !ask;
   if (ask && stats.handIndex !== ask.index) {  // a new angle to set: show it, and offer it as the answer
@@ -353,6 +355,12 @@ function onFrame(f) {
   if (alpha !== pictureAlpha) loadPicture(alpha);
   if (stats.frames % 5 === 0) drawRig(r);  // a few times a second is enough for numbers to be read
   if (f.points !== pointsVersion) { pointsVersion = f.points; loadPoints(); }
+  const sw = f.sweep;
+  const version = sw ? `${sw.taken}/${sw.running}` : null;
+  if (sw && version !== sweepVersion) {  // a sweep's point taken, or a sweep started or ended: its results, the list
+    sweepVersion = version; loadSweepResults();
+    if (!sw.running) loadResumable();
+  }
   if (f.host_ns && f.mode === "live") {
     requestAnimationFrame(() => {
       const drawnMs = performance.timeOrigin + performance.now();
@@ -517,10 +525,11 @@ function buildControls() {
     row.append(label, input, set, now); box.appendChild(row);
   }
   const servo = rig.actuators.find((a) => a.kind === "angle");
+  const fan = rig.actuators.find((a) => a.kind === "fan");
   const byHand = !servo && rig.kind === "airfoil";  // no servo: the operator sets each angle when asked
-  $("sweep").hidden = !servo && !byHand;
-  $("sw-hand-note").hidden = !byHand;
+  $("sweep").hidden = !servo && !byHand && !fan;
   if (servo) { $("sw-from").value = Math.max(servo.min, -4); $("sw-to").value = Math.min(servo.max, 12); }
+  buildSweepForm(servo, fan, byHand);
   $("b-zero").onclick = () => control("zero", {}, "wind-off zero taken");
   $("b-capture").onclick = async () => { const o = await control("capture", { seconds: 1.0 }); if (o) say(`point ${o.point.index} captured (${o.point.state})`); };
   $("b-record").onclick = async () => {
@@ -531,12 +540,14 @@ function buildControls() {
   $("b-note").onclick = async () => { const t = $("note").value.trim(); if (!t) return; if (await control("note", { text: t })) { $("note").value = ""; } };
   $("b-sweep").onclick = async () => {
     if (!(await confirmFirst())) return;
-    const past = $("sw-past").value.trim();
-    const o = await control("sweep-start", { from_deg: +$("sw-from").value, to_deg: +$("sw-to").value, step_deg: +$("sw-step").value,
-                                             settle_s: +$("sw-settle").value, average_s: +$("sw-avg").value,
-                                             up_and_down: $("sw-updown").checked, by_hand: byHand,
-                                             ...(past === "" ? {} : { past_stall: +past }) });
-    if (o) say(`sweep of at most ${o.angles} points started`);
+    const kind = sweepKind(), past = $("sw-past").value.trim();
+    const body = { kind, settle_s: numberOf("sw-settle"), average_s: numberOf("sw-avg"), up_and_down: $("sw-updown").checked };
+    if (kind !== "fan") Object.assign(body, { from_deg: numberOf("sw-from"), to_deg: numberOf("sw-to"), step_deg: numberOf("sw-step"),
+                                              by_hand: byHand, ...(past === "" ? {} : { past_stall: numberOf("sw-past") }) });
+    if (kind !== "angle") Object.assign(body, { fans: $("sw-fans").value, spin_up_s: numberOf("sw-spin") });
+    if (kind === "fan" && servo) body.at_deg = numberOf("sw-at");
+    const o = await formControl("sweep-start", body);
+    if (o) say(`${kind === "fan" ? "fan" : kind === "nested" ? "nested" : "angle"} sweep of ${o.points} points${lastPlanExact() ? "" : " at most"} started`);
   };
   $("sw-hand-ok").onclick = async () => {
     const v = Number($("sw-hand-angle").value);
@@ -548,6 +559,146 @@ function buildControls() {
   $("stop").onclick = stopAll;
   $("resume").onclick = () => control("resume", {}, "control resumed: set the fan and the angle again");
 }
+// ---- sweeps: the form adapts to the rig's actuators; refusals are shown beside their field ------------------------
+const FIELD_INPUT = { fans: "sw-fans", fan: "sw-fans", from_deg: "sw-from", to_deg: "sw-to", step_deg: "sw-step", at_deg: "sw-at",
+                      past_stall: "sw-past", settle_s: "sw-settle", average_s: "sw-avg", spin_up_s: "sw-spin",
+                      up_and_down: "sw-updown", by_hand: "sw-kinds", kind: "sw-kinds", inner: "sw-kinds" };
+function numberOf(id) { const t = $(id).value.trim(); return t === "" ? null : Number(t); }
+function sweepKind() { const r = document.querySelector('input[name="sw-kind"]:checked'); return r ? r.value : "angle"; }
+function lastPlanExact() { return !(lastFrame && lastFrame.sweep && lastFrame.sweep.exact === false); }
+function clearFieldErrors() {
+  document.querySelectorAll("#sweep .field-error").forEach((e) => e.remove());
+  document.querySelectorAll('#sweep [aria-invalid="true"]').forEach((e) => e.removeAttribute("aria-invalid"));
+}
+function showFieldError(field, text) {
+  const input = $(FIELD_INPUT[field] || "sw-kinds");
+  input.setAttribute("aria-invalid", "true");
+  const note = document.createElement("span"); note.className = "field-error"; note.id = `err-${field}`;
+  note.textContent = text; note.setAttribute("role", "alert");
+  const at = input.closest("label") || input;
+  at.insertAdjacentElement("afterend", note);
+}
+async function formControl(action, body) {
+  clearFieldErrors();
+  try { const out = await api(`/api/live/${action}`, body); say(""); return out; }
+  catch (e) { if (e.field) showFieldError(e.field, e.message); say(e.message, true); return null; }
+}
+function buildSweepForm(servo, fan, byHand) {
+  const kinds = { angle: !!servo || byHand, fan: !!fan, nested: !!servo && !!fan };
+  for (const [k, ok] of Object.entries(kinds)) $(`sw-k-${k}-l`).hidden = !ok;
+  const first = ["angle", "fan", "nested"].find((k) => kinds[k]);
+  if (first) $(`sw-k-${first}`).checked = true;
+  if (fan) {
+    const span = fan.max - fan.min, r = (x) => Math.round((fan.min + x * span) * 1000) / 1000;
+    $("sw-fans").value = `${r(0.4)}:${r(0.8)}:${r(0.2) - r(0)}`;
+    $("sw-fan-unit").textContent = fan.unit;
+    $("sw-fan-limits").textContent = `${fan.name}: ${fmt(fan.min)} … ${fmt(fan.max)} ${fan.unit}; safe (off) value ${fmt(fan.safe)}, ` +
+      "which a sweep cannot take as a point. Settings as 0.3,0.5,0.8 or FROM:TO:STEP, as taprig sweep --fans takes them.";
+  }
+  if (servo) $("sw-at").min = servo.min, $("sw-at").max = servo.max;
+  const shape = () => {
+    const k = sweepKind();
+    $("sw-fan-part").hidden = k === "angle"; $("sw-angle-part").hidden = k === "fan";
+    $("sw-at-l").hidden = !(k === "fan" && servo); $("sw-past-l").hidden = k === "fan";
+    $("sw-fan-caution").hidden = k === "angle";
+    $("sw-hand-note").hidden = !(byHand && k !== "fan");
+    clearFieldErrors();
+  };
+  document.querySelectorAll('input[name="sw-kind"]').forEach((r) => r.addEventListener("change", shape));
+  shape();
+  $("resume-box").hidden = !rig.sessions;
+  $("resume-refresh").onclick = loadResumable;
+  $("resume-cancel").onclick = () => { $("resume-ask").hidden = true; resumeChoice = null; };
+  $("resume-go").onclick = resumeSweep;
+}
+function sweepProgress(sw) {
+  const c = sw.current;
+  if (!c) return `${sw.done} of ${sw.exact ? "" : "at most "}${sw.total} points`;
+  const fan = rig.actuators.find((a) => a.kind === "fan");
+  const parts = [`point ${c.number} of ${sw.exact ? "" : "at most "}${sw.total}`, `leg ${c.leg}`];
+  if (c.fan !== null && c.fan !== undefined) parts.push(`fan ${fmt(c.fan)}${fan ? " " + fan.unit : ""}`);
+  if (c.alpha_deg !== null && c.alpha_deg !== undefined) parts.push(`α ${c.alpha_deg >= 0 ? "+" : ""}${fmt(c.alpha_deg, 1)}°${c.by_hand ? " (by hand)" : ""}`);
+  return parts.join(", ") + ` — ${sw.done} taken`;
+}
+
+// ---- resuming an interrupted sweep ---------------------------------------------------------------------------
+let resumeChoice = null;
+function nextWords(s) {
+  const n = s.next; const fan = rig.actuators.find((a) => a.kind === "fan");
+  return `point ${n.number} of ${s.past_stall === null ? "" : "at most "}${s.at_most}: ${n.label}` +
+    (n.fan !== null && fan ? ` (${fan.name} → ${fmt(n.fan)} ${fan.unit})` : "");
+}
+async function loadResumable() {
+  if (role !== "control" || $("resume-box").hidden) return;
+  let data; try { data = await api("/api/live/resumable"); } catch (e) { $("resume-msg").textContent = e.message; return; }
+  const tb = document.querySelector("#resumable tbody"); tb.replaceChildren();
+  data.sessions.forEach((s, i) => {
+    const tr = document.createElement("tr");
+    for (const c of [i + 1, s.name, `${s.taken} of ${s.past_stall === null ? "" : "at most "}${s.at_most}`, nextWords(s)]) {
+      const td = document.createElement("td"); td.textContent = c; tr.appendChild(td);
+    }
+    const td = document.createElement("td"); const b = document.createElement("button"); b.textContent = "Resume…"; b.className = "resume";
+    b.onclick = () => {
+      resumeChoice = s; $("resume-ask").hidden = false; $("resume-msg").textContent = "";
+      $("resume-text").textContent = `Go on with the sweep of ${s.name}: its ${s.taken} point${s.taken === 1 ? "" : "s"} are carried into ` +
+        `a new recording, and the next point it takes is ${nextWords(s)}. ` + (s.fans.length ? "The fan will run: guards on, hands clear." : "");
+    };
+    td.appendChild(b); tr.appendChild(td); tb.appendChild(tr);
+  });
+  $("resume-none").hidden = data.sessions.length > 0;
+  if (resumeChoice && !data.sessions.some((s) => s.name === resumeChoice.name)) { resumeChoice = null; $("resume-ask").hidden = true; }
+}
+async function resumeSweep() {
+  if (!resumeChoice || !(await confirmFirst())) return;
+  $("resume-msg").textContent = "";
+  try {
+    const o = await api("/api/live/sweep-resume", { name: resumeChoice.name, zero: $("resume-zero").checked });
+    say(`resumed ${resumeChoice.name}: ${o.carried} points carried${o.recording ? ", recording to " + o.recording : ""}`);
+    $("resume-ask").hidden = true; resumeChoice = null;
+  } catch (e) { $("resume-msg").textContent = e.message; say(e.message, true); }
+}
+
+// ---- a sweep's results, as the analysis gives them ---------------------------------------------------------------
+async function loadSweepResults() {
+  if (rig.mode !== "live") return;
+  let data; try { data = await api("/api/live/sweep-results"); } catch (e) { return; }
+  stats.sweepResults = data;
+  $("results-card").hidden = !data.n;
+  if (!data.n) return;
+  const fanSweep = data.inner === "fan";
+  const venturi = !!data.discharge;
+  $("results-title").textContent = venturi ? "Sweep results: discharge coefficient C against Re_D"
+    : fanSweep ? "Sweep results: Cl against Re at the held angle" : "Sweep results";
+  const lines = $("results-lines"); lines.replaceChildren();
+  for (const t of data.lines) { const li = document.createElement("li"); li.textContent = t; lines.appendChild(li); }
+  const yOf = (p) => (venturi ? p.c : p.cl);
+  $("results-y").textContent = venturi ? "C" : "Cl";
+  const tb = document.querySelector("#results tbody"); tb.replaceChildren();
+  for (const p of data.points) {
+    const tr = document.createElement("tr");
+    const cells = [p.number, (p.label || "") + (p.carried ? " (carried)" : ""), p.fan === null ? "–" : fmt(p.fan),
+                   p.alpha_deg === null ? "–" : fmt(p.alpha_deg, 1), p.re ? fmtU(p.re) : "–", yOf(p) ? fmtU(yOf(p)) : "–"];
+    for (const c of cells) { const td = document.createElement("td"); td.textContent = c; tr.appendChild(td); }
+    tb.appendChild(tr);
+  }
+  const chart = $("results-chart");
+  chart.hidden = !(venturi || fanSweep);
+  if (chart.hidden) return;
+  const pts_ = data.points.filter((p) => p.re && yOf(p)).sort((a, b) => a.re[0] - b.re[0]);
+  const xs = pts_.map((p) => p.re[0]), ys = pts_.map((p) => yOf(p)[0]), es = pts_.map((p) => yOf(p)[1]);
+  const ref = venturi && data.discharge.iso ? xs.map(() => data.discharge.iso.c) : xs.map(() => null);
+  if (!charts.results) {
+    const series = [{}, { label: venturi ? "C (measured)" : "Cl (measured)", ...pts(C.blue, C.blue), scale: "y" },
+      { label: "ISO 5167-4 machined convergent (stated value)", stroke: C.ink, width: 2, dash: [8, 5], scale: "y", points: { show: false } }];
+    charts.results = new uPlot({ ...sizeOf(chart), legend: { show: true, live: false }, cursor: { show: false },
+      scales: { x: { time: false }, y: { auto: true } },
+      axes: [axis(venturi ? "Re_D [-]" : "Re [-]"), axis(venturi ? "C [-]" : "Cl [-]", { scale: "y" })],
+      series, plugins: [errorBars()] }, series.map(() => []), chart);
+  }
+  charts.results.series[1].err = es;
+  charts.results.setData([xs, ys, ref]);
+}
+
 async function stopAll() {
   const o = await control("stop");
   if (o) say(o.failed.length ? `STOP sent; not acknowledged: ${o.failed.join("; ")}` : "STOP: every actuator at its safe value (acknowledged)", !!o.failed.length);
