@@ -99,6 +99,8 @@ class Link:
         self.meter = ByteRateMeter()
         self.gaps: list[LinkGap] = []
         self.heartbeats_sent = 0
+        #: Writes that timed out on a port that then took a delimiter (a host frozen inside a write): not losses.
+        self.write_timeouts = 0
         #: Bytes read from another board (a different uid) on a reconnect attempt: never decoded nor recorded.
         self.other_board_bytes = 0
         self._port: serial.SerialBase | None = None
@@ -495,12 +497,32 @@ class Link:
                 if self._last_write_mono is not None:
                     quiet = max(quiet, now - self._last_write_mono)
                 guard(quiet)
-            port.write(frame)
+            self._write_bytes(port, frame)
             if self._last_write_mono is not None:
                 self._longest_quiet_s = max(self._longest_quiet_s, now - self._last_write_mono)
             self._last_write_mono = now
             self._tx_seq = (seq + 1) & 0xFFFFFFFF
             return seq
+
+    def _write_bytes(self, port: serial.SerialBase, frame: bytes) -> None:
+        """Write one encoded frame; a write timeout is a lost port only if the port then cannot take one byte.
+
+        pyserial (POSIX) measures its write timeout on the monotonic clock from the start of the call and checks it
+        after the bytes went out, and that clock runs on while the process is stopped: a host frozen inside a write
+        (SIGSTOP, a starved machine) wakes to a ``SerialTimeoutException`` for bytes a healthy port took, and
+        treating that as a loss dropped and re-made the link right after every such freeze. So after a timeout the
+        frame, which may have been cut short, is ended with a delimiter under a fresh timeout (PROTOCOL.md §1: the
+        receiver loses at most that frame; an extra ``0x00`` is an empty frame it ignores). Only when that times
+        out too is the port stuck, and the exception goes up (the link is lost). A command whose frame was cut
+        gets no reply: its caller sees a timeout, as on a noisy line.
+        """
+        try:
+            port.write(frame)
+        except serial.SerialTimeoutException:
+            port.write(b"\x00")
+            self.write_timeouts += 1
+            log.warning("a write to %s timed out (the host may have been frozen); the port took a delimiter "
+                        "after it, so the link is kept", self.port_name)
 
     def take_longest_quiet(self) -> float:
         """The longest time [s] the host sent the device nothing since the last call (the time since the last
