@@ -103,8 +103,14 @@ class Timeline:
             self.cursor = self.end + round(DECISION_S * 1e9)
 
     def window(self, seconds: float) -> tuple[int, int]:
-        """The device-time window [start, end) of ``seconds`` ending where the last wait ended."""
-        return self.end - round(seconds * 1e9), self.end
+        """The device-time window [start, end) of ``seconds`` ending where the last wait ended; on a board that is
+        not paced, ending with the newest scan now (an unpaced compressed board may have run on by more than the
+        scans kept since the wait ended)."""
+        end = self.end
+        if not self.acq.paced:
+            newest = self.acq.newest_t_ns
+            end = max(end, newest + 1) if newest is not None else end
+        return end - round(seconds * 1e9), end
 
     def set(self, name: str, value: float) -> None:
         """Set an actuator, to act at the cursor (a paced board; a real one acts on arrival)."""
