@@ -244,8 +244,11 @@ def test_a_sweep_from_the_page_takes_its_points_and_can_be_stopped(live):
     # the page shows the server's sentences (taprig.analysis.wording): the slope with its combined u, Cl max with its u
     from taprig.analysis.wording import pm
 
-    u_slope = math.hypot(curve["u_slope_scatter_per_deg"], curve["u_slope_systematic_per_deg"])
-    assert curve["lines"][0].startswith(f"Lift slope {pm(curve['slope_per_deg'], u_slope)} per degree")
+    # (a line through two points has no scatter part: null here, "not stated" in words, not counted as 0)
+    parts = [u for u in (curve["u_slope_scatter_per_deg"], curve["u_slope_systematic_per_deg"]) if u is not None]
+    assert curve["lines"][0].startswith(f"Lift slope {pm(curve['slope_per_deg'], math.hypot(*parts))} per degree")
+    if curve["u_slope_scatter_per_deg"] is None:
+        assert "scatter not stated" in curve["lines"][0]
     assert f"Cl max {pm(curve['cl_max'], curve['u_cl_max'])}" in curve["lines"][2]
     # refused before anything moves: reversed range, outside the servo's limits
     assert "runs down" in live.post("/api/live/sweep-start", {"from_deg": 4, "to_deg": 0}).get_json()["error"]
