@@ -111,6 +111,7 @@ def test_a_reynolds_sweep_holds_the_angle(wing):
     assert wing.post("/api/live/sweep-start", body).status_code == 200
     assert wing.station.sweep.plan == terminal_plan(AIRFOIL, "--at-deg", "4", "--fans", "0.5,0.8")
     wait_for(wing, lambda: not wing.station.sweep.running, 120)
+    assert wing.station.sweep.message == "sweep done"
     shown = wing.get("/api/live/sweep-results").get_json()
     assert [round(p["alpha_deg"]) for p in shown["points"]] == [4, 4]
     assert shown["points"][0]["re"][0] < shown["points"][1]["re"][0] and shown["lift"] == []
