@@ -56,3 +56,26 @@ def test_room_conditions_in_the_rig_file_name_the_unit_slip():
         '[fluid]\nmedium = "air"', '[fluid]\nmedium = "air"\nambient_pressure_pa = 1013.25', 1)
     with pytest.raises(RigError, match="looks like hPa: ambient_pressure_pa = 101325"):
         parse_rig(text, "x.toml")
+
+
+def test_before_a_zero_the_no_flow_threshold_carries_the_offset_band():
+    # A channel never zeroed reads "no pressure" only to within its datasheet offset part (a rectangular bound,
+    # u = FS·o/(100√3), JCGM 100:2008 §4.3.7); a wind-off zero removes it, leaving one count's LSB/√12 (GUM
+    # F.2.2.1). The threshold is 3 u(q at no flow), q = p_total − p_static (GUM §5.1.2), at least two counts.
+    from datetime import datetime, timezone
+
+    from taprig.rig import build_calibration
+    from taprig.rig.fitting import ZeroResult
+
+    rig = load_rig(Path(__file__).resolve().parents[2] / "rigs" / "naca0012-20tap.toml")
+    probe = rig.sensors["probe"]
+    channels = tuple(sorted(c.index for c in rig.channels))
+    lsb = probe.slope
+    offset = probe.full_scale * probe.offset_pct_fs / 100.0 / np.sqrt(3.0)
+    nominal = Reducer(rig).plan(channels).q_threshold
+    assert nominal == pytest.approx(3.0 * np.sqrt(2.0 * (offset**2 + lsb**2 / 12.0)), rel=1e-9)
+    names = [rig.channel(i).name for i in channels]
+    zero = ZeroResult(np.array([rig.sensor_of(i).si_to_counts(0.0) for i in channels]), np.zeros(len(channels)), 100)
+    cal = build_calibration(rig, names, datetime(2000, 1, 1, tzinfo=timezone.utc), zero=zero)
+    zeroed = Reducer(rig, cal).plan(channels).q_threshold
+    assert zeroed == pytest.approx(max(3.0 * np.sqrt(2.0 * lsb**2 / 12.0), 2.0 * 2.0 * lsb), rel=1e-9)

@@ -82,7 +82,9 @@ def test_a_writer_failure_ends_the_run_with_a_message_and_the_file_says_why(tmp_
 
 def test_a_reduction_failure_ends_the_run_non_zero(tmp_path, capsys):
     rig = tmp_path / "inf.toml"
-    rig.write_text(AIRFOIL.read_text().replace("a_per_pa = 0.00016", "a_per_pa = inf", 1))
+    text = AIRFOIL.read_text()
+    assert "a_per_pa = 0.000009" in text  # the barometer, the example's one ratiometric sensor
+    rig.write_text(text.replace("a_per_pa = 0.000009", "a_per_pa = inf", 1))
     shutil.copy(RIGS / "bump-profile.csv", tmp_path)
     code, stdout, err = run_cli(capsys, "record", "--rig", rig, "--port", SIM, "--duration", "30", "--no-dashboard",
                                 "-o", tmp_path / "r.taprig", "--quiet")

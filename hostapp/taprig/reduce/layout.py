@@ -232,7 +232,8 @@ class TypeB:
     constant: np.ndarray  # [SI], independent between channels
     gain: np.ndarray  # relative [-], independent between channels: multiplies the reading
     gain_common: np.ndarray  # relative [-], fully correlated between the spanned channels of a calibration
-    zero: np.ndarray  # [SI], the uncertainty of a reading at no flow (zero standard error ⊕ resolution)
+    zero: np.ndarray  # [SI], the uncertainty of a reading at no flow (zero standard error ⊕ resolution, and the
+    # datasheet's offset part while the channel has no zero)
 
 
 def type_b(rig: Rig, channels: tuple[int, ...], scale: np.ndarray, calibration: Calibration | None) -> TypeB:
@@ -256,7 +257,12 @@ def type_b(rig: Rig, channels: tuple[int, ...], scale: np.ndarray, calibration: 
         if level is CalibrationLevel.SPANNED:
             out.gain_common[col] = entry.reference_u_rel or 0.0
         out.constant[col] = math.sqrt(datasheet**2 + residual**2 + zero_error**2 + resolution**2)
-        out.zero[col] = math.hypot(zero_error, resolution)
+        # a channel never zeroed reads "no pressure" only to within its datasheet's offset part
+        offset = 0.0
+        if level is CalibrationLevel.NOMINAL:
+            sensor = rig.sensors[channel.sensor]
+            offset = sensor.full_scale * sensor.offset_pct_fs / 100.0 / math.sqrt(3.0)
+        out.zero[col] = math.sqrt(zero_error**2 + resolution**2 + offset**2)
     return out
 
 
@@ -312,8 +318,9 @@ def column_plan(layout: RigLayout, channels: tuple[int, ...], calibration: Calib
 def _q_threshold(layout, q_gather, col_of, u_b, scale, factor) -> float:
     """No-flow threshold: ``factor`` × u(q at no flow) from the q channels' zero uncertainty, at least two counts.
 
-    The zero uncertainty (resolution and the wind-off zero's standard error), not the full accuracy, decides
-    whether a q is distinguishable from no flow: a span error scales with the reading and vanishes at zero.
+    The zero uncertainty (resolution and the wind-off zero's standard error; before a zero, the datasheet's offset
+    part, rectangular, GUM §4.3.7), not the full accuracy, decides whether a q is distinguishable from no flow: a
+    span error scales with the reading and vanishes at zero.
     """
     if q_gather is not None:
         jac = q_gather.matrix(u_b.size)[0]
