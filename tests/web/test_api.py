@@ -368,3 +368,22 @@ def test_frame_serialised_once_for_every_viewer(live):
     for t in threads:
         t.join()
     json.loads(frame.text())
+
+
+def test_resume_after_a_watchdog_trip_ends_the_boards_safe_hold_and_moves_nothing_itself(live):
+    # PROTOCOL.md §4 (1.1): after a trip the board refuses moves until ALLOW_MOVES, which only the operator's
+    # resume sends; the resume itself moves nothing.
+    assert live.post("/api/live/setpoint", {"actuator": "fan", "value": 0.5}).status_code == 200
+    board = live.acq.link._port.device
+    with live.acq.link._port._lock:
+        board._trip_watchdog()  # the board's watchdog trips now (as when the host's heartbeats stop reaching it)
+    wait_for(live, lambda: live.acq.halted.is_set())
+    refused = live.post("/api/live/setpoint", {"actuator": "fan", "value": 0.6})
+    assert refused.status_code >= 400 and "resume" in refused.get_json()["error"]
+    assert board.held and board.actuators[0].setpoint == 0.0
+    assert live.post("/api/live/resume").status_code == 200
+    assert not board.held and board.actuators[0].setpoint == 0.0  # nothing moved on the resume
+    assert live.post("/api/live/setpoint", {"actuator": "fan", "value": 0.6}).status_code == 200
+    assert board.actuators[0].setpoint == pytest.approx(0.6)
+    sent = [type(m).__name__ for _, _, m in board.commands]
+    assert sent.count("AllowMoves") == 2  # at the start of the run and on the resume, never on its own
