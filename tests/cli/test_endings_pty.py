@@ -10,6 +10,7 @@ its safe value (acknowledged when the link is up), the session is closed cleanly
 
 from __future__ import annotations
 
+import itertools
 import json
 import math
 import os
@@ -76,12 +77,18 @@ class Lines:
         return "".join(self.seen)
 
 
+_BENCHES = itertools.count()
+
+
 class Bench:
     """A simulated board in its own process, logging every command it receives."""
 
     def __init__(self, tmp_path: Path):
         self.log = tmp_path / "board-commands.jsonl"
-        self.proc = subprocess.Popen([*TAPRIG, "sim", "--rig", str(RIG), "--seconds", "120", "--seed", "3",
+        # A seed of its own, so its uid (sim-<rig>-<seed>) is its own: after a pulled cable the host must not take
+        # another test's board, on a pseudo-terminal that reused the freed path, for the same one.
+        seed = str(3 + os.getpid() % 10_000 * 1000 + next(_BENCHES))
+        self.proc = subprocess.Popen([*TAPRIG, "sim", "--rig", str(RIG), "--seconds", "120", "--seed", seed,
                                       "--command-log", str(self.log)],
                                      stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
         self.err = Lines(self.proc.stderr)
