@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 
@@ -65,3 +67,37 @@ def test_a_drift_the_window_means_hide_is_still_a_drift():
     assert verdict.trend["q"] == pytest.approx(0.4, rel=1e-3)
     assert not verdict.steady and "still drifting" in verdict.reason
     assert steady_state(t, {"q": 153.0 + 0.2 * t / 3.0}, {"q": 0.3}, 3.0).steady
+
+
+@pytest.mark.parametrize("tau", [0.5, 1.5, 3.0, 6.0])
+def test_the_approach_bound_holds_the_true_gap_of_a_first_order_spin_up(tau):
+    # the stream speed after a fan step follows a first-order lag (common practice): s = s∞ (1 − e^{−t/τ}),
+    # q = ρ/2 s²; with 1 Pa of noise the bound, wherever it says steady, is above the exact remaining gap of q,
+    # and it says steady within about 8 time constants (ln(1/0.001) ≈ 6.9 for 0.1 % in speed, plus the bound's
+    # margin)
+    from taprig.reduce.steady import approach_bound
+
+    rng = np.random.default_rng(11)
+    t = np.arange(0.0, 12 * tau + 10.0, 0.002)
+    q = 153.0 * (1.0 - np.exp(-t / tau)) ** 2 + rng.normal(0.0, 1.0, t.size)
+    passed = None
+    for end in np.arange(3.0, t[-1], 0.5):
+        keep = t <= end
+        bound = approach_bound(t[keep], q[keep], 0.0, 0.002, 3.0)
+        at = bound.since_s
+        exact = 1.0 - (1.0 - np.exp(-at / tau)) ** 2  # q's remaining gap at the fitted span's centre, relative
+        if math.isfinite(bound.gap_rel):
+            assert bound.gap_rel >= exact, (end, bound, exact)
+        if bound.steady:
+            passed = end
+            break
+    assert passed is not None and passed <= 8 * tau + 4.0, passed
+
+
+def test_a_drift_with_no_end_in_sight_is_not_bounded():
+    # a straight rise since the change: the rate now equals the mean rate since, no time constant fits
+    from taprig.reduce.steady import approach_bound
+
+    t = np.arange(0.0, 20.0, 0.002)
+    bound = approach_bound(t, (1.0 + 0.01 * t) ** 2 * 100.0, 100.0, 0.002, 3.0)
+    assert not bound.steady and bound.gap_rel == math.inf

@@ -13,13 +13,19 @@ noise, so the spread alone passed while q was still short of its steady value: w
 3 s time constant, the sweep's first point read 151.9 Pa against 153.5 Pa steady (1.1 % short by the fan model;
 the spread allowed 1.29 Pa). The line fitted to every scan of the hold sees the same drift with a far smaller
 error.
+
+After a fan change a flat line over a short hold is not enough either: the line's slope is only known to its noise,
+and a slow approach hides in that noise (with a 4.5 s fan lag the sweep's first point passed 1.04 % short of
+steady). So the first point after a fan change must also pass :func:`approach_bound`: an upper bound on what
+remains of the approach to steady, from the fitted rate and the time constant that rate implies, within the q
+tolerance.
 """
 
 from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -41,11 +47,15 @@ class SteadyCriteria:
     q_rel: float = 0.002
     coefficient: float = 0.005
     timeout_s: float = 30.0
+    #: [s of device time from the fan change]: how long the first point after a fan change may wait for the
+    #: approach to steady (:func:`approach_bound`) before saying the fan did not settle
+    spin_up_timeout_s: float = 90.0
 
     def __post_init__(self) -> None:
         if not (self.hold_s > 0 and self.windows >= 2 and self.q_rel > 0 and self.coefficient > 0
-                and self.timeout_s > 0):
-            raise ValueError("steady criteria: hold_s, q_rel, coefficient and timeout_s must be > 0, windows ≥ 2")
+                and self.timeout_s > 0 and self.spin_up_timeout_s > 0):
+            raise ValueError("steady criteria: hold_s, q_rel, coefficient, timeout_s and spin_up_timeout_s must be "
+                             "> 0, windows ≥ 2")
 
 
 @dataclass(frozen=True)
@@ -60,15 +70,20 @@ class Steadiness:
     #: per signal: the fitted straight line's change across the hold, and the change allowed (tolerance + noise)
     trend: dict = field(default_factory=dict)
     trend_allowed: dict = field(default_factory=dict)
+    #: after a fan change: :meth:`Approach.as_record` of the bound on the approach still to come (else empty)
+    approach: dict = field(default_factory=dict)
 
     def as_record(self) -> dict:
         """The verdict's figures as JSON-able data (a point's record), per signal, in its unit."""
         def num(x):
             return float(x) if x is not None and math.isfinite(x) else None
 
-        return {name: {"spread": num(self.spread[name]), "allowed": num(self.allowed[name]),
-                       "trend": num(self.trend.get(name)), "trend_allowed": num(self.trend_allowed.get(name))}
-                for name in self.spread}
+        record = {name: {"spread": num(self.spread[name]), "allowed": num(self.allowed[name]),
+                         "trend": num(self.trend.get(name)), "trend_allowed": num(self.trend_allowed.get(name))}
+                  for name in self.spread}
+        if self.approach:
+            record["q"] = {**record.get("q", {}), "approach": dict(self.approach)}
+        return record
 
 
 def steady_state(t_s, signals: Mapping[str, object], tolerances: Mapping[str, float], hold_s: float,
@@ -161,12 +176,142 @@ def _trend(t, x, hold_s: float, tolerance: float) -> tuple[float, float]:
     return float(slope) * hold_s, tolerance + 2.0 * se * hold_s
 
 
-def block_steadiness(reduced, criteria: SteadyCriteria) -> Steadiness:
-    """:func:`steady_state` of a reduced block's q and coefficients under ``criteria`` (q's tolerance relative to
-    its mean; Cl, Cd_p, Cm¼ and Cl(balance) where the rig has them)."""
-    t = (np.asarray(reduced.t_ns, dtype=np.int64) - int(reduced.t_ns[0])) / 1e9
+@dataclass(frozen=True)
+class Approach:
+    """The bound on what remains of the approach to steady after a fan change: ``gap_rel`` [-], the upper bound on
+    how far q at the hold's centre is still short of (or above) its steady value, relative to it (inf when the
+    data cannot bound it: the flow still changes as fast as it did on average since the change); ``allowed_rel``
+    [-]; ``tau_s`` [s], the time constant the bound implies; ``since_s`` [s] from the fan change to the hold's
+    centre; ``hold_s`` [s], the span of the fitted line used; ``steady``: ``gap_rel`` ≤ ``allowed_rel``."""
+
+    steady: bool
+    gap_rel: float
+    allowed_rel: float
+    tau_s: float
+    since_s: float
+    hold_s: float
+
+    def as_record(self) -> dict:
+        def num(x):
+            return float(x) if math.isfinite(x) else None
+
+        return {"gap_rel": num(self.gap_rel), "allowed_rel": float(self.allowed_rel), "tau_s": num(self.tau_s),
+                "since_s": float(self.since_s), "hold_s": float(self.hold_s)}
+
+
+def approach_bound(t_s, q, q_before: float, tolerance_rel: float, hold_s: float) -> Approach:
+    r"""An upper bound on the approach to steady still to come, ``t_s`` [s] after a fan change.
+
+    The stream speed (∝ √q) is taken to follow the fan with a first-order lag, possibly after a slew: the speed's
+    remaining gap g at a time t after the change is its rate times the time constant, g = ṡ τ, and the change so far
+    Δ = s(t) − s₀ fixes τ:
+
+    .. math::
+        \Delta = \dot s\,\tau\,(e^{t/\tau} - 1), \qquad g = \frac{\Delta}{e^{t/\tau} - 1}, \qquad
+        \frac{\delta q}{q} \approx \frac{2g}{s + g}
+
+    with ṡ the slope of the straight line fitted to s = √q over a span H ending at the newest sample, taken at
+    its upper bound |b̂| + 2 u(b̂) (standard error of a least-squares slope, serial correlation counted), t the
+    span's centre after the change. g grows with ṡ, so the upper bound of the slope gives an upper bound of the
+    gap; a slew before the lag, or a slope averaged over a span where the flow was still faster, only make the
+    bound larger (conservative). When ṡ t ≥ Δ no time constant fits (the flow changes as fast as it did on
+    average since the change: a drift with no end in sight) and the gap is unbounded. Spans H = ``hold_s``,
+    2 ``hold_s``, 4 ``hold_s`` … within the data since the change are tried; the least bound counts (a longer
+    span resolves a smaller slope, a shorter one is nearer now).
+
+    Parameters
+    ----------
+    t_s : array_like
+        Sample times [s] after the fan change, increasing.
+    q : array_like
+        Dynamic pressure at ``t_s`` [Pa] (NaN where none).
+    q_before : float
+        q just before the fan change [Pa] (0 with the fan off).
+    tolerance_rel : float
+        Allowed remaining gap of q, relative [-].
+    hold_s : float
+        Shortest span to fit [s].
+
+    Returns
+    -------
+    Approach
+
+    References
+    ----------
+    First-order lag step response s(t) = s∞ − (s∞ − s₀) e^{−t/τ} (common practice, any control or measurement
+    text); standard error of a least-squares slope (common practice).
+
+    Examples
+    --------
+    >>> t = np.arange(0.0, 30.0, 0.002)
+    >>> q = (12.0 * (1 - np.exp(-t / 1.5))) ** 2
+    >>> approach_bound(t, q, 0.0, 0.002, 3.0).steady
+    True
+    >>> approach_bound(t[t < 6], q[t < 6], 0.0, 0.002, 3.0).steady
+    False
+    """
+    t = np.asarray(t_s, dtype=float)
+    x = np.asarray(q, dtype=float)
+    keep = np.isfinite(x)
+    t, s = t[keep], np.sqrt(np.clip(x[keep], 0.0, None))
+    s0 = math.sqrt(max(float(q_before), 0.0)) if math.isfinite(q_before) else 0.0
+    best = Approach(False, math.inf, tolerance_rel, math.inf, 0.0, hold_s)
+    if t.size < 8:
+        return best
+    span = hold_s
+    while span <= t[-1] + 1e-9:
+        sel = t >= t[-1] - span
+        if np.count_nonzero(sel) >= 8:
+            tt, ss = t[sel], s[sel]
+            centre = 0.5 * (tt[0] + tt[-1])
+            slope, at_centre = np.polyfit(tt - centre, ss, 1)
+            resid = ss - (slope * (tt - centre) + at_centre)
+            n_eff = float(effective_sample_count(resid))
+            se = float(resid.std(ddof=2)) / (float(tt.std()) * math.sqrt(max(n_eff, 3.0)))
+            rate = abs(float(slope)) + 2.0 * se
+            gap, tau = _remaining(abs(float(at_centre) - s0), rate, centre)
+            level = float(at_centre) + math.copysign(gap, float(at_centre) - s0) if math.isfinite(gap) else math.inf
+            gap_rel = 2.0 * gap / level if math.isfinite(gap) and level > 0 else math.inf
+            if gap_rel < best.gap_rel or not math.isfinite(best.gap_rel):
+                best = Approach(gap_rel <= tolerance_rel, gap_rel, tolerance_rel, tau, float(centre), span)
+        span *= 2.0
+    return best
+
+
+def _remaining(change: float, rate: float, t: float) -> tuple[float, float]:
+    """The gap g = change / (e^{t/τ} − 1) and τ [s] of a first-order approach that changed by ``change`` in ``t``
+    [s] and moves at ``rate`` now: τ solves τ (e^{t/τ} − 1) = change / rate (bisection on x = t/τ)."""
+    if rate <= 0.0:
+        return 0.0, 0.0
+    ratio = change / (rate * t) if t > 0 else 0.0  # (e^x − 1)/x, > 1 for any finite τ
+    if not ratio > 1.0 + 1e-12:
+        return math.inf, math.inf
+    lo, hi = 0.0, 1.0
+    while math.expm1(hi) / hi < ratio:
+        hi *= 2.0
+        if hi > 700.0:
+            return 0.0, 0.0
+    for _ in range(80):
+        mid = 0.5 * (lo + hi)
+        if mid > 0 and math.expm1(mid) / mid < ratio:
+            lo = mid
+        else:
+            hi = mid
+    x = 0.5 * (lo + hi)
+    return change / math.expm1(x), t / x
+
+
+def block_steadiness(reduced, criteria: SteadyCriteria, since_ns: int | None = None,
+                     q_before: float = 0.0) -> Steadiness:
+    """:func:`steady_state` of a reduced block's q and coefficients under ``criteria`` over its last
+    ``criteria.hold_s`` (q's tolerance relative to its mean there; Cl, Cd_p, Cm¼ and Cl(balance) where the rig has
+    them); with ``since_ns``, the device time of a fan change [ns], also :func:`approach_bound` of q over the block
+    from then on (``q_before`` [Pa]: q before the change), within q's tolerance."""
+    t_ns = np.asarray(reduced.t_ns, dtype=np.int64)
+    t = (t_ns - int(t_ns[0])) / 1e9
     q = np.asarray(reduced.q_pa, dtype=float)
-    q_mean = float(np.nanmean(q)) if np.isfinite(q).any() else 0.0
+    last = (t >= t[-1] - criteria.hold_s) & np.isfinite(q)
+    q_mean = float(q[last].mean()) if last.any() else 0.0
     signals = {"q": q}
     tolerances = {"q": criteria.q_rel * abs(q_mean)}
     for name in ("cl", "cd_p", "cm_qc", "cl_balance"):
@@ -174,4 +319,16 @@ def block_steadiness(reduced, criteria: SteadyCriteria) -> Steadiness:
         if values is not None and np.isfinite(values).any():
             signals[name] = values
             tolerances[name] = criteria.coefficient
-    return steady_state(t, signals, tolerances, criteria.hold_s, criteria.windows)
+    verdict = steady_state(t, signals, tolerances, criteria.hold_s, criteria.windows)
+    if since_ns is None:
+        return verdict
+    after = t_ns >= int(since_ns)
+    approach = approach_bound((t_ns[after] - int(since_ns)) / 1e9, q[after], q_before, criteria.q_rel,
+                              criteria.hold_s)
+    reason = verdict.reason
+    if verdict.steady and not approach.steady:
+        gap = f"up to {100 * approach.gap_rel:.2g} %" if math.isfinite(approach.gap_rel) else "by an amount it cannot bound"
+        reason = (f"q is still approaching its steady value {approach.since_s:.3g} s after the fan change: {gap} "
+                  f"away by its rate and time constant (allowed {100 * approach.allowed_rel:.2g} %)")
+    return replace(verdict, steady=verdict.steady and approach.steady, reason=reason,
+                   approach=approach.as_record())

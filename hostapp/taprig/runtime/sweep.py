@@ -21,6 +21,8 @@ import time
 from dataclasses import dataclass, replace
 from typing import Callable, Mapping, Protocol, Sequence
 
+import numpy as np
+
 from taprig.protocol import ActuatorKind
 from taprig.reduce import ReducedMean
 from taprig.reduce.polar import LiftCurve, lift_curve
@@ -123,21 +125,41 @@ class Timeline:
             self.cursor = max(self.cursor, newest + round(DECISION_S * 1e9))
             self.acq.pace(self.cursor)
 
-    def steady(self, criteria: SteadyCriteria) -> Steadiness:
+    def steady(self, criteria: SteadyCriteria, fan_changed: tuple[int, float] | None = None) -> Steadiness:
         """Wait, from the end of the last wait on, until q and the coefficients of the ``criteria.hold_s`` before
-        the end are steady (:mod:`taprig.reduce.steady`); AcquisitionError saying what moved when
-        ``criteria.timeout_s`` of device time pass first."""
+        the end are steady (:mod:`taprig.reduce.steady`); with ``fan_changed`` (the fan command's device time
+        [ns], q before it [Pa]) also until the bound on the approach still to come is within q's tolerance
+        (:func:`~taprig.reduce.steady.approach_bound`, over up to 8 holds since the change). AcquisitionError
+        saying what moved when ``criteria.timeout_s`` of device time pass first (after a fan change:
+        ``criteria.spin_up_timeout_s`` from the change, if later)."""
         acq, first = self.acq, self.end
         step = round(criteria.hold_s / criteria.windows * 1e9)
+        limit = first + round(criteria.timeout_s * 1e9)
+        since, q_before = fan_changed if fan_changed is not None else (None, 0.0)
+        if since is not None:
+            limit = max(limit, int(since) + round(criteria.spin_up_timeout_s * 1e9))
         while True:
-            block = acq.scans_between(*self.window(criteria.hold_s))
-            verdict = block_steadiness(acq.reducer.reduce(block, alpha_rad=acq.alpha_rad), criteria) \
+            span = criteria.hold_s
+            if since is not None:
+                span = max(span, min((self.end - since) / 1e9, 8 * criteria.hold_s))
+            block = acq.scans_between(*self.window(span))
+            verdict = block_steadiness(acq.reducer.reduce(block, alpha_rad=acq.alpha_rad), criteria, since,
+                                       q_before) \
                 if block is not None and block.n_scans >= 2 else Steadiness(False, reason="no data yet")
             if verdict.steady:
                 return verdict
-            if self.end - first >= criteria.timeout_s * 1e9:
-                raise AcquisitionError(f"the flow did not settle within {criteria.timeout_s:g} s: {verdict.reason}")
+            if self.end >= limit:
+                raise AcquisitionError(f"the flow did not settle within {(limit - first) / 1e9:g} s: "
+                                       f"{verdict.reason}")
             self.wait_until(self.end + step)
+
+    def q_now(self, seconds: float = 0.5) -> float:
+        """The mean q of the ``seconds`` before the end of the last wait [Pa] (0 with no flow or no scans)."""
+        block = self.acq.scans_between(*self.window(seconds))
+        if block is None or block.n_scans < 1:
+            return 0.0
+        q = self.acq.reducer.reduce(block, alpha_rad=self.acq.alpha_rad).q_pa
+        return float(np.nanmean(q)) if np.isfinite(q).any() else 0.0
 
 
 def wait_device_time(acq: Acquisition, seconds: float, timeout_s: float) -> None:
@@ -271,7 +293,7 @@ def run_plan(acq: Acquisition, plan: SweepPlan, settle_s: float = 1.0, average_s
     acq.check_running()
     acq.event("sweep plan", {"plan": plan.to_dict(), "settle_s": settle_s, "average_s": average_s,
                              "spin_up_s": spin_up_s, "resumed_after": len(records)})
-    driven = set()
+    driven, fan_changed = set(), None
     if start_ns is None:
         clock = Timeline.begin(acq, timeout_s)
         clock.wait_until(clock.cursor)
@@ -284,6 +306,7 @@ def run_plan(acq: Acquisition, plan: SweepPlan, settle_s: float = 1.0, average_s
                 break
             acq.check_running()
             if target.fan is not None and acq.setpoints[fan.name] != target.fan:
+                fan_changed = (clock.cursor, clock.q_now())  # the first point after it waits for its approach
                 clock.set(fan.name, target.fan)
                 driven.add(fan.name)
                 clock.wait(spin_up_s, timeout_s + spin_up_s)
@@ -302,7 +325,9 @@ def run_plan(acq: Acquisition, plan: SweepPlan, settle_s: float = 1.0, average_s
             acq.check_flow(average_s, clock.window(average_s))  # points without flow would be numbers without meaning
             extra = point_record_keys(target)
             if steady is not None:
-                extra["steady"] = clock.steady(replace(steady, hold_s=max(steady.hold_s, average_s))).as_record()
+                extra["steady"] = clock.steady(replace(steady, hold_s=max(steady.hold_s, average_s)),
+                                               fan_changed).as_record()
+            fan_changed = None
             mean = acq.capture_point(target.label(), average_s, extra, window=clock.window(average_s))
             records.append(acq.last_record)
             point = SweepPoint(acq.alpha_rad, mean, target, acq.last_record)
