@@ -257,3 +257,19 @@ def test_a_session_given_as_a_rig_file_says_so(capsys, sessions, command):
 def test_record_with_a_session_as_the_rig_says_so(tmp_path, capsys, sessions):
     code, _, err = run_cli(capsys, "record", "--rig", sessions[0], "--port", "sim://", "-o", tmp_path / "x.taprig")
     assert_one_line_error(code, err, "is not a text TOML rig file")
+
+
+def test_replay_says_no_flow_with_the_fan_off_as_the_live_line_does(tmp_path, capsys):
+    # issue 10, item 2: with the fan off, "no flow" and no Cl, V or Re. The session starts wind-off (the zero a
+    # sweep or demo takes first) and the fan comes on at 1 s; replay's line per second is the live line's flow part.
+    path = tmp_path / "wind-off-first.taprig"
+    record_simulated(AIRFOIL, path, 3.0, 400.0, SimOptions(seed=4, **QUICK_FAN), [Setpoint(1.0, "fan", 0.9)])
+    code, out, err = run_cli(capsys, "replay", path, "--fast")
+    lines = out.strip().splitlines()[:-1]
+    assert code == 0 and err == "" and lines[0].split()[1] == "0"
+    off = lines[0]
+    assert "no flow" in off, off
+    for word in (" V ", " Re ", " Cl ", "nan"):
+        assert word not in off, off
+    on = lines[-1]
+    assert "no flow" not in on and " V " in on and " Re " in on and " Cl " in on, on

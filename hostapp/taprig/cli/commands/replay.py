@@ -10,7 +10,6 @@ final summary. The helpers here (session errors as one line, the progress bar) s
 from __future__ import annotations
 
 import contextlib
-import math
 import sys
 import time
 
@@ -68,14 +67,18 @@ def progress_bar(description: str, total: int):
 # -- the per-second summary ---------------------------------------------------------------------------------------
 
 class SecondLines:
-    """Means over each second of session time, printed when the second is complete."""
+    """Means over each second of session time, printed when the second is complete: the same flow part as the
+    live line of ``record``/``live`` (:func:`taprig.cli.live.flow_parts`), so a second with the fan off says
+    "no flow" and shows no V, Re or coefficient."""
 
-    QUANTITIES = ("q_pa", "v_ms", "cl", "mass_flow_kg_s")
+    QUANTITIES = ("q_pa", "v_ms", "re", "alpha_rad", "cl", "cd_p", "cm_qc", "scan_flags", "mass_flow_kg_s",
+                  "cl_balance")
 
     def __init__(self, start_ns: int, out):
         self.start_ns, self.out = start_ns, out
         self.second: int | None = None
         self._parts: dict[str, list[np.ndarray]] = {}
+        self._notes: dict[str, str] = {}
 
     def add(self, step, counters) -> None:
         """Take a replay step's blocks; print the lines of every second that ends before its last scan."""
@@ -90,19 +93,20 @@ class SecondLines:
                     value = getattr(block.reduced, name)
                     if value is not None:
                         self._parts.setdefault(name, []).append(value[rows])
+                self._notes = {"reference_note": block.reduced.reference_note,
+                               "calibration_warning": block.reduced.calibration_warning}
 
     def flush(self, counters) -> None:
         """Print the line of the current second (if it has scans)."""
         if self.second is None or not self._parts:
             return
-        from taprig.reduce import finite_mean  # here, not at import: `taprig --help` should not load the reducer
+        from types import SimpleNamespace
 
-        means = {name: finite_mean(np.concatenate(parts)) for name, parts in self._parts.items()}
-        line = [f"t {self.second:5d} s", f"q {means['q_pa']:7.1f} Pa", f"V {means['v_ms']:5.1f} m/s"]
-        if math.isfinite(means["cl"]):
-            line.append(f"Cl {means['cl']:6.3f}")
-        if "mass_flow_kg_s" in means:
-            line.append(f"ṁ {means['mass_flow_kg_s'] * 1000:7.3f} g/s")
+        from taprig.cli.live import flow_parts  # here, not at import: `taprig --help` should not load the reducer
+
+        arrays = {name: np.concatenate(self._parts[name]) if name in self._parts else None
+                  for name in self.QUANTITIES}
+        line = [f"t {self.second:5d} s", *flow_parts(SimpleNamespace(**arrays, **self._notes))]
         c = counters.as_dict()
         line.append(f"frames {c['frames']} crc {c['crc_errors']} gaps {c['gaps']} lost {c['scans_lost']} scans")
         print("  ".join(line), file=self.out, flush=True)
