@@ -89,7 +89,7 @@ def test_an_unforeseen_error_still_ends_safe_and_closed(tmp_path, capsys, monkey
     from taprig.cli.commands import sweep as sweep_command
     from taprig.session.store import SessionReader
 
-    def broken(point):
+    def broken(point, kind):
         raise RuntimeError("a defect while printing a row")
 
     monkeypatch.setattr(sweep_command, "point_line", broken)

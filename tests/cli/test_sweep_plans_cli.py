@@ -258,3 +258,38 @@ def test_bad_plans_are_refused_before_anything_opens(tmp_path, capsys, rig, args
     err = capsys.readouterr().err
     assert message in err and "Traceback" not in err
     assert not out.exists()
+
+
+@pytest.mark.parametrize("rig, plan, header, claimed", [
+    ("naca0012-20tap.toml", ["--from-deg", "0", "--to-deg", "4", "--step-deg", "2"],
+     ["Cl (fit, walls)", "Cl trap", "Cd_p", "Cm¼"], 1),
+    ("cylinder.toml", ["--fans", "0.5,0.8"], ["Cd_p"], 1),
+    ("venturi-8.toml", ["--fans", "0.5,0.8"], ["ṁ [g/s]"], 0),
+    ("bump-channel.toml", ["--fans", "0.5,0.8"], [], 0),
+])
+def test_the_sweep_table_shows_what_the_rigs_kind_computes(tmp_path, capsys, rig, plan, header, claimed):
+    # the columns follow the coefficients taprig claims for the kind (RigKind.coefficients, which `taprig check`'s
+    # prediction asks too): an airfoil's Cl, Cd_p, Cm¼; a cylinder's Cd_p; a venturi's mass flow; no coefficient
+    # for a bump in a channel
+    from taprig.rig import RigKind, load_rig
+
+    path = ROOT / "rigs" / rig
+    code = main(["sweep", "--rig", str(path), "--port", "sim://?seed=2&speed=max&watchdog_ms=0", *plan,
+                 "--settle", "0.3", "--average", "0.5", "--no-dashboard", "-o", str(tmp_path / "s.taprig")])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    lines = captured.out.splitlines()
+    top = next(i for i, line in enumerate(lines) if line.lstrip().startswith("α [°]"))
+    columns = [c for c in lines[top].split("  ") if c.strip()]
+    assert [c.strip() for c in columns[6:]] == header  # after α, fan, leg, q, V, Re
+    rows = lines[top + 1:top + 3]
+    assert len(rows) == 2 and all(row.count(" ± ") == claimed for row in rows), rows
+    kind = load_rig(path).kind
+    assert ("Cl" in lines[top]) == ("cl" in kind.coefficients)
+    assert kind is not RigKind.BUMP or not any("Cl" in line or "Cd" in line for line in lines[top:top + 3])
+    if kind is RigKind.CYLINDER:
+        # the simulated cylinder is in potential flow (docs/simulator.md): no pressure drag (d'Alembert's paradox,
+        # common practice); the column is Cd_p ± its u
+        for row in rows:
+            cd, u = float(row.split()[-3]), float(row.split()[-1])
+            assert abs(cd) <= 2 * u + 1e-3, row

@@ -58,6 +58,18 @@ class RigKind(str, Enum):
     BUMP = "bump"
     OTHER = "other"
 
+    @property
+    def coefficients(self) -> tuple[str, ...]:
+        """The coefficients taprig claims for this kind of rig (reduced-coefficient names, its headline first):
+        an airfoil's Cl, Cd_p and Cm¼; a cylinder's Cd_p; none for a venturi (its flow rate instead), a bump in a
+        channel (its Cp distribution) or another rig. The one place that says so: ``taprig check``'s prediction,
+        the sweep table and the reduction's users ask here."""
+        return _KIND_COEFFICIENTS[self]
+
+
+_KIND_COEFFICIENTS = {RigKind.AIRFOIL: ("cl", "cd_p", "cm_qc"), RigKind.CYLINDER: ("cd_p",), RigKind.VENTURI: (),
+                      RigKind.BUMP: (), RigKind.OTHER: ()}
+
 
 class Medium(str, Enum):
     """The working fluid."""

@@ -86,9 +86,9 @@ def _figures(reducer: Reducer, block: RawBlock, alpha: float) -> _Figures:
     """Ask the reduction for the mean of ``block`` and keep what the rig's kind computes."""
     mean = reducer.reduce_mean(block, alpha)
     coeffs = mean.default
-    kind = reducer.rig.kind
-    u_cl = coeffs.u_cl if coeffs is not None and kind is RigKind.AIRFOIL else math.nan
-    u_cd = coeffs.u_cd_p if coeffs is not None and kind is RigKind.CYLINDER else math.nan
+    headline = reducer.rig.kind.coefficients[:1]  # what the kind claims first: an airfoil's Cl, a cylinder's Cd
+    u_cl = coeffs.u_cl if coeffs is not None and headline == ("cl",) else math.nan
+    u_cd = coeffs.u_cd_p if coeffs is not None and headline == ("cd_p",) else math.nan
     u_cp = float(np.nanmax(mean.u_cp)) if np.isfinite(mean.u_cp).any() else math.nan
 
     def number(x) -> float:

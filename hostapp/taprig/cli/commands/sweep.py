@@ -131,9 +131,10 @@ def _fmt(c, name: str, width: int, digits: int) -> str:
     return f"{getattr(c, name):{width}.{digits}f}" if c is not None else f"{'–':>{width}}"
 
 
-def point_line(point) -> str:
-    """One row of the sweep table: α, fan, leg, q, V, Re, Cl (shape fit, wall-corrected) ± u, Cl (trapezoid),
-    Cd_p, Cm¼, the suction side's Cp fluctuation (rms), and a venturi's mass flow."""
+def point_line(point, kind) -> str:
+    """One row of the sweep table for a rig of ``kind`` (:class:`taprig.rig.RigKind`): α, fan, leg, q, V, Re, then
+    what the kind computes (``kind.coefficients``): an airfoil's Cl (shape fit, wall-corrected) ± u, Cl
+    (trapezoid), Cd_p and Cm¼; a cylinder's Cd_p ± u; a venturi's mass flow; nothing more for a bump."""
     m = point.mean
     record = point.record or {}
     alpha = f"{math.degrees(point.alpha_rad):6.1f}" if point.alpha_rad is not None else f"{'–':>6}"
@@ -144,9 +145,14 @@ def point_line(point) -> str:
         return (f"{alpha}  {fan}  {leg}  IMPLAUSIBLE: q {m.q_pa:.3g} Pa is beyond what the rig can make (check the "
                 "calibration and the sensors)")
     best = m.corrected or m.default
-    cl = f"{best.cl:6.3f} ± {best.u_cl:5.3f}" if best is not None else f"{'–':>14}"
-    line = (f"{alpha}  {fan}  {leg}  {m.q_pa:7.1f}  {m.v_ms:5.1f}  {m.re:8.2e}  {cl:>15}  "
-            f"{_fmt(m.plain, 'cl', 7, 3)}  {_fmt(best, 'cd_p', 7, 4)}  {_fmt(best, 'cm_qc', 7, 4)}")
+    line = f"{alpha}  {fan}  {leg}  {m.q_pa:7.1f}  {m.v_ms:5.1f}  {m.re:8.2e}"
+    claimed = kind.coefficients
+    if "cl" in claimed:
+        cl = f"{best.cl:6.3f} ± {best.u_cl:5.3f}" if best is not None else f"{'–':>14}"
+        line += f"  {cl:>15}  {_fmt(m.plain, 'cl', 7, 3)}  {_fmt(best, 'cd_p', 7, 4)}  {_fmt(best, 'cm_qc', 7, 4)}"
+    elif "cd_p" in claimed:
+        cd = f"{best.cd_p:6.4f} ± {best.u_cd_p:6.4f}" if best is not None else f"{'–':>15}"
+        line += f"  {cd:>15}"
     if m.mass_flow_kg_s is not None and math.isfinite(m.mass_flow_kg_s):
         line += f"  {m.mass_flow_kg_s * 1e3:7.3f}"
     noted = [NOTED[f] for f in m.flag_names if f in NOTED]
@@ -160,11 +166,15 @@ NOTED = {"SATURATED": "saturated", "OUT_OF_RANGE": "beyond a sensor's rated rang
 
 
 def header(rig) -> str:
-    """The sweep table's header for ``rig``."""
+    """The sweep table's header for ``rig``: the columns of :func:`point_line` for its kind."""
     from taprig.rig import RigKind
 
-    text = (f"{'α [°]':>6}  {'fan':>5}  {'leg':>4}  {'q [Pa]':>7}  {'V m/s':>5}  {'Re':>8}  {'Cl (fit, walls)':>15}  "
-            f"{'Cl trap':>7}  {'Cd_p':>7}  {'Cm¼':>7}")
+    text = f"{'α [°]':>6}  {'fan':>5}  {'leg':>4}  {'q [Pa]':>7}  {'V m/s':>5}  {'Re':>8}"
+    claimed = rig.kind.coefficients
+    if "cl" in claimed:
+        text += f"  {'Cl (fit, walls)':>15}  {'Cl trap':>7}  {'Cd_p':>7}  {'Cm¼':>7}"
+    elif "cd_p" in claimed:
+        text += f"  {'Cd_p':>15}"
     return text + (f"  {'ṁ [g/s]':>7}" if rig.kind is RigKind.VENTURI else "")
 
 
@@ -301,7 +311,7 @@ class _SweepRun:
 
         self.points.append(point)
         self.records.append(point.record)
-        emit(point_line(point), flush=True)
+        emit(point_line(point, self.acq.rig.kind), flush=True)
         if self.station is not None:
             self.station.add_sweep_point(point)
 
