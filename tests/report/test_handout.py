@@ -515,3 +515,37 @@ def test_the_table_states_v_and_re_with_the_records_uncertainty_or_says_it_is_no
     assert rows[0][v] == pm(new["v_ms"], new["u_v_ms"]) == "20.358 ± 0.083"
     assert rows[0][re_] == f"({pm(new['re'] / 1e5, new['u_re'] / 1e5)})e5" == "(1.3523 ± 0.0062)e5"
     assert rows[1][v] == "not stated" and rows[1][re_] == "≈ 1.4e+05 (u not stated)"
+
+
+def test_the_iso_band_is_the_standards_stated_one_percent_at_k_2_not_doubled(sessions, tmp_path):
+    # ISO 5167-4:2003 §5.5.4 (from memory): a classical venturi with a machined convergent has C = 0.995 with a
+    # relative uncertainty of 1 %; ISO 5167-1:2003 §8 (from memory) states the standard's uncertainties at about
+    # 95 % confidence, i.e. expanded with k ≈ 2. So the band is 0.995 × (1 ± 0.01) at k = 2, and the standard
+    # uncertainty every other use takes (reduction, check) is 0.5 %.
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from taprig.analysis import ISO_MACHINED
+    from taprig.physics.venturi import ISO5167_VENTURI_C_U_REL
+    from taprig.reduce import ReduceOptions
+    from taprig.report.content import load_session
+    from taprig.report.figures import draw_discharge
+
+    assert ISO_MACHINED.u_rel == ISO5167_VENTURI_C_U_REL == ReduceOptions().discharge_coefficient_u_rel == 0.005
+    assert ISO_MACHINED.k == 2.0
+    fig, ax = plt.subplots()
+    try:
+        draw_discharge(ax, load_session(sessions["venturi-pitot"]))
+        (band,) = [c for c in ax.collections if c.get_label().startswith("ISO 5167-4")]
+        y = np.concatenate([path.vertices[:, 1] for path in band.get_paths()])
+        assert y.min() == pytest.approx(0.995 * (1 - 0.01), abs=1e-12)
+        assert y.max() == pytest.approx(0.995 * (1 + 0.01), abs=1e-12)
+    finally:
+        plt.close(fig)
+    pdf = tmp_path / "v.pdf"
+    assert handout(sessions["venturi-pitot"], "-o", pdf)[0] == 0
+    text = " ".join(pdf_text(pdf, 2).split())
+    assert "C = 0.995 ± 1 % (k = 2, about 95 %)" in text, text[:3000]
+    assert "± 2 %" not in text

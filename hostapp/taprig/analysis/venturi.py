@@ -26,18 +26,37 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from taprig.physics.venturi import ISO5167_MACHINED_VENTURI_C, ideal_station_cp
+from taprig.physics.venturi import ISO5167_MACHINED_VENTURI_C, ISO5167_VENTURI_C_COVERAGE_K, \
+    ISO5167_VENTURI_C_U_REL, ideal_station_cp
 
 
 @dataclass(frozen=True)
 class IsoVenturiRange:
-    """The stated discharge coefficient of a machined-convergent classical venturi and where it holds."""
+    """The stated discharge coefficient of a machined-convergent classical venturi and where it holds.
+
+    ``u_rel`` is the relative *standard* uncertainty of C (0.5 %); the standard states 1 % at about 95 %, which is
+    ``expanded_rel`` = k × ``u_rel`` with ``k`` = 2 (ISO 5167-4 §5.5.4 and ISO 5167-1 §8, from memory).
+    """
 
     c: float = ISO5167_MACHINED_VENTURI_C
-    relative_uncertainty: float = 0.01
+    u_rel: float = ISO5167_VENTURI_C_U_REL
+    k: float = ISO5167_VENTURI_C_COVERAGE_K
     re_d: tuple[float, float] = (2e5, 1e6)
     beta: tuple[float, float] = (0.4, 0.75)
     diameter_m: tuple[float, float] = (0.050, 0.250)
+
+    @property
+    def expanded_rel(self) -> float:
+        """The relative uncertainty as the standard states it (about 95 %, k = 2): 1 %."""
+        return self.k * self.u_rel
+
+    def band(self) -> tuple[float, float]:
+        """C × (1 ∓ k·u_rel): the interval the standard states, at about 95 % (k = 2)."""
+        return self.c * (1.0 - self.expanded_rel), self.c * (1.0 + self.expanded_rel)
+
+    def stated(self) -> str:
+        """``C = 0.995 ± 1 % (k = 2, about 95 %)``."""
+        return f"C = {self.c:g} ± {self.expanded_rel * 100:g} % (k = {self.k:g}, about 95 %)"
 
     def outside(self, re_d: float, beta: float, diameter_m: float) -> list[str]:
         """The conditions of a measurement that lie outside the standard's range, in words (empty when inside)."""

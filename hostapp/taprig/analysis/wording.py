@@ -305,7 +305,7 @@ def venturi_lines(a, iso, per_point: bool = True) -> list[str]:
     out = [f"Diameter ratio β = {s.beta:.3f}, inlet D = {s.inlet_diameter_m * 1e3:.1f} mm (the rig's geometry); "
            f"ideal throat Cp {s.cp_ideal[s.throat]:.3f} (continuity and Bernoulli, referred to the inlet)."]
     dc = a.discharge
-    standard = (f"ISO 5167-4 (machined convergent): C = {iso.c:g} ± {iso.relative_uncertainty * 100:g} % for Re_D "
+    standard = (f"ISO 5167-4 (machined convergent): {iso.stated()} for Re_D "
                 f"{iso.re_d[0]:.0e}…{iso.re_d[1]:.0e}, β {iso.beta[0]:g}…{iso.beta[1]:g}, D "
                 f"{iso.diameter_m[0] * 1e3:g}…{iso.diameter_m[1] * 1e3:g} mm.")
     if dc is None:

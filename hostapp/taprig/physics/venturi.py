@@ -301,9 +301,16 @@ def venturi_mass_flow(
     return c * e * eps * np.pi / 4.0 * d**2 * np.sqrt(2.0 * dp * rho)
 
 
-#: Relative standard uncertainty of C = 0.995 for a machined-convergent classical venturi: the standard states 1 %
-#: at about 95 % (k = 2) within its range of use (ISO 5167-4:2003 §5.5.4, from memory).
-ISO5167_VENTURI_C_U_REL = 0.005
+#: Relative uncertainty of C = 0.995 for a machined-convergent classical venturi as the standard states it: 1 %
+#: within its range of use (ISO 5167-4:2003 §5.5.4, from memory) ...
+ISO5167_VENTURI_C_EXPANDED_REL = 0.01
+#: ... at about 95 % confidence, i.e. an expanded uncertainty with coverage factor k ≈ 2: ISO 5167-1 states its
+#: uncertainties so (ISO 5167-1:2003 §8, from memory; GUM §6.2).
+ISO5167_VENTURI_C_COVERAGE_K = 2.0
+#: Relative standard uncertainty of C [-]: the stated 1 % over k = 2, i.e. 0.5 %. Every use of the standard's C
+#: (the reduction's mass-flow uncertainty, ``taprig check``'s prediction, the venturi analysis and the handout's
+#: band) takes it from here.
+ISO5167_VENTURI_C_U_REL = ISO5167_VENTURI_C_EXPANDED_REL / ISO5167_VENTURI_C_COVERAGE_K
 
 
 def venturi_expansibility_u_rel(beta: ArrayLike, differential: ArrayLike, upstream_pressure: ArrayLike) -> np.ndarray:

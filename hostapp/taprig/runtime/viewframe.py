@@ -278,7 +278,7 @@ def sweep_results(records, rig, plan=None) -> dict:
         out["discharge"] = {
             "mean_c": pair(dc.mean_c, dc.u_mean_c), "beta": num(dc.beta),
             "re_d_range": [num(dc.re_d[ok].min()), num(dc.re_d[ok].max())] if ok.any() else None,
-            "iso": {"c": ISO_MACHINED.c, "relative_uncertainty": ISO_MACHINED.relative_uncertainty,
+            "iso": {"c": ISO_MACHINED.c, "u_rel": ISO_MACHINED.u_rel, "k": ISO_MACHINED.k,
                     "re_d": list(ISO_MACHINED.re_d), "beta": list(ISO_MACHINED.beta)},
             "iso_outside": list(a.iso_outside)}
     if rig.kind.value == "venturi":
