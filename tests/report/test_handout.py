@@ -549,3 +549,19 @@ def test_the_iso_band_is_the_standards_stated_one_percent_at_k_2_not_doubled(ses
     text = " ".join(pdf_text(pdf, 2).split())
     assert "C = 0.995 ± 1 % (k = 2, about 95 %)" in text, text[:3000]
     assert "± 2 %" not in text
+
+
+def test_each_kind_shows_only_the_coefficients_it_claims(sessions, tmp_path):
+    # What a kind claims is RigKind.coefficients, which taprig check and the sweep table ask too: a bump in a
+    # channel claims no Cd_p (its page shows Cp only), a cylinder its pressure drag.
+    bump, cylinder, both = tmp_path / "bump.pdf", tmp_path / "cylinder.pdf", tmp_path / "both.pdf"
+    assert handout(sessions["bump"], "-o", bump)[0] == 0
+    assert handout(sessions["cylinder"], "-o", cylinder)[0] == 0
+    bump_text, cylinder_text = (" ".join(pdf_text(p).split()) for p in (bump, cylinder))
+    assert "pressure drag only" not in bump_text and "Cd_p is pressure drag only" in cylinder_text
+    assert re.search(r"Cd_p [-\d.]+ ± [\d.]+ \(pressure drag only\), Re", cylinder_text)  # a point's line
+    # two bump sessions compared: the reason in words instead of an empty chart, then their Cp overlaid
+    code, _, err = handout(sessions["bump"], sessions["bump"], "-o", both)
+    assert code == 0, err
+    page = " ".join(pdf_text(both, 2).split())
+    assert "Sessions compared" in page and "claims no coefficient" in page

@@ -271,7 +271,7 @@ def point_phrase(head: str, values: Mapping[str, tuple]) -> str:
 
 
 def drag_point_line(label: str, coefficients: Mapping, record: Mapping, state: str = "") -> str | None:
-    """One point of a cylinder or a bump: Cd_p (pressure drag only) and Re, each with its uncertainty; a point in a
+    """One point of a cylinder: Cd_p (pressure drag only) and Re, each with its uncertainty; a point in a
     state is the state in words; None when the point has no Cd_p with an uncertainty."""
     if state:
         return _sentence(f"{label}: {state.upper()}, no numbers shown")

@@ -10,7 +10,7 @@ import math
 import numpy as np
 
 from taprig.analysis import ISO_MACHINED
-from taprig.analysis.wording import as_number, pm, reynolds
+from taprig.analysis.wording import LABELS, as_number, pm, reynolds
 from taprig.reduce.curves import THIN_AIRFOIL_SLOPE
 from taprig.report.content import PointView, SessionContent
 from taprig.report.style import BALANCE, DOWN, GREY, INK, LOWER, ONE_WAY, THEORY, UP, UPPER, VERMILION, cycle, marker_only
@@ -395,18 +395,20 @@ def draw_calibration(ax, content: SessionContent) -> None:
     ax.legend(handles, labels, fontsize=6, loc="upper right")
 
 
-def comparison_value(content: SessionContent) -> tuple[str, np.ndarray, np.ndarray, np.ndarray]:
-    """What one session contributes to a comparison: (name, values, uncertainties, mask of shown points) of the
-    quantity a rig of its kind is read by (Cl; a venturi's mass flow; otherwise Cd_p)."""
+def comparison_value(content: SessionContent) -> tuple[str, np.ndarray, np.ndarray] | None:
+    """What one session contributes to a comparison: (name, values, uncertainties) over its shown points of the
+    quantity a rig of its kind is read by: its headline coefficient (RigKind.coefficients: an airfoil's Cl, a
+    cylinder's Cd_p), a venturi's mass flow; None for a kind that claims neither (a bump: its Cp overlay only)."""
     shown = content.shown
-    if content.rig.kind is RigKind.AIRFOIL:
-        vals = [best_coefficients(p.record) for p in shown]
-        return "Cl", np.array([as_number(c.get("cl")) for c in vals]), np.array([as_number(c.get("u_cl")) for c in vals]), None
     if content.rig.kind is RigKind.VENTURI:
         return ("mass flow [g/s]", np.array([as_number(p.record.get("mass_flow_kg_s")) * 1e3 for p in shown]),
-                np.array([as_number(p.record.get("u_mass_flow_kg_s")) * 1e3 for p in shown]), None)
+                np.array([as_number(p.record.get("u_mass_flow_kg_s")) * 1e3 for p in shown]))
+    if not content.rig.kind.coefficients:
+        return None
+    name = content.rig.kind.coefficients[0]
     vals = [best_coefficients(p.record) for p in shown]
-    return "Cd_p", np.array([as_number(c.get("cd_p")) for c in vals]), np.array([as_number(c.get("u_cd_p")) for c in vals]), None
+    return (LABELS[name], np.array([as_number(c.get(name)) for c in vals]),
+            np.array([as_number(c.get(f"u_{name}")) for c in vals]))
 
 
 def comparison_x(content: SessionContent, align: str) -> np.ndarray:
@@ -416,11 +418,15 @@ def comparison_x(content: SessionContent, align: str) -> np.ndarray:
     return np.array([as_number(p.record.get("q_pa")) for p in content.shown])
 
 
-def draw_comparison(ax, contents: list[SessionContent], align: str) -> None:
-    """Several sessions on one axes, aligned by α or by q."""
+def draw_comparison(ax, contents: list[SessionContent], align: str) -> str:
+    """Several sessions on one axes, aligned by α or by q; returns why nothing was drawn ("" when something was):
+    sessions of a kind with no headline quantity (:func:`comparison_value`) are left off."""
     names = set()
     for i, c in enumerate(contents):
-        name, y, u, _ = comparison_value(c)
+        value = comparison_value(c)
+        if value is None:
+            continue
+        name, y, u = value
         names.add(name)
         x = comparison_x(c, align)
         re = np.array([as_number(p.record.get("re")) for p in c.shown])
@@ -430,12 +436,16 @@ def draw_comparison(ax, contents: list[SessionContent], align: str) -> None:
             re_text = f", Re {reynolds(re[k], c.shown[k].record.get('u_re'))}"
         _errorbar(ax, x, y, np.where(np.isfinite(u), u, np.nan), cycle(i), label=f"{c.path.name}{re_text}")
     ax.set_xlabel("α commanded [°]" if align == "alpha" else "q [Pa]")
+    if not names:
+        return (f"a {contents[0].rig.kind.value} rig claims no coefficient (taprig check says what each kind "
+                "computes), so the sessions are compared by their Cp alone")
     ax.set_ylabel(" / ".join(sorted(names)))
     ax.set_title("Sessions compared, aligned by " + ("angle of attack" if align == "alpha" else "dynamic pressure"),
                  fontsize=10)
     ax.axhline(0, color=GREY, lw=0.5)
     ax.grid(True, lw=0.3, alpha=0.5)
     ax.legend(fontsize=7)
+    return ""
 
 
 # -- Cp of several sessions at a shared angle (or q) --------------------------------------------------------------

@@ -99,7 +99,7 @@ def rests_on(c: SessionContent) -> tuple[list[str], list[str]]:
                  "modal": "the Fourier-series (modal) fit of the cylinder's Cp through the taps"}
         rest.append("Coefficients: " + "; ".join(words.get(m, m) for m in methods) + ".")
     omit = []
-    if rig.kind in (RigKind.AIRFOIL, RigKind.CYLINDER, RigKind.BUMP):
+    if "cd_p" in rig.kind.coefficients:
         omit.append("Cd_p is pressure drag only: the taps do not see skin friction, so it is not the section's drag.")
     if rig.kind is RigKind.AIRFOIL:
         omit.append("Cl and Cm are of the midspan section (2-D), from the taps' pressures alone.")
@@ -287,7 +287,7 @@ def theory_page(c: SessionContent, n: int):
         lines.append("Potential flow has Cp = 1 at the front, −3 at the shoulders and full recovery behind; a real "
                      "cylinder separates (near 80° when laminar, common practice) and its base pressure stays "
                      "negative: a gap between the curves behind the shoulders is the wake.")
-    for p in c.shown:
+    for p in c.shown if "cd_p" in c.rig.kind.coefficients else ():  # a bump claims no Cd_p (RigKind.coefficients)
         line = wording.drag_point_line(p.label, F.best_coefficients(p.record), p.record)
         if line is not None:
             lines.append(line)
@@ -329,16 +329,15 @@ def table_rows(c: SessionContent) -> list[list[str]]:
             continue
         cf = F.best_coefficients(r)
 
-        def coeff(name):
-            return pm(cf.get(name), cf.get(f"u_{name}")) or "–"
+        def coeff(name):  # only what the rig's kind claims (RigKind.coefficients): a bump has no Cd_p
+            return (pm(cf.get(name), cf.get(f"u_{name}")) or "–") if name in c.rig.kind.coefficients else "–"
 
         v, re = as_number(r.get("v_ms")), as_number(r.get("re"))
         rows.append(head + [
             pm(r.get("q_pa"), r.get("u_q_pa")) or "–",
             pm(v, r.get("u_v_ms")) or ("not stated" if math.isfinite(v) else "–"),
             reynolds(re, r.get("u_re")),
-            coeff("cl") if c.rig.kind is RigKind.AIRFOIL else "–",
-            coeff("cd_p"), coeff("cm_qc") if c.rig.kind is RigKind.AIRFOIL else "–",
+            coeff("cl"), coeff("cd_p"), coeff("cm_qc"),
             pm(r.get("cl_balance"), r.get("u_cl_balance")) or "–",
             pm(r.get("mass_flow_kg_s"), r.get("u_mass_flow_kg_s"), 1e3) or "–",
         ])
@@ -386,8 +385,12 @@ def table_pages(c: SessionContent, first: int) -> list:
 def comparison_page(contents: Sequence[SessionContent], align: str, n: int):
     c = contents[0]
     fig = _page_with(c, "Sessions compared", n)
-    F.draw_comparison(fig.add_axes([0.1, 0.64, 0.82, 0.28]), list(contents), align)
+    top = fig.add_axes([0.1, 0.64, 0.82, 0.28])
+    why_not = F.draw_comparison(top, list(contents), align)
     lines = []
+    if why_not:  # no headline quantity to compare (a bump): the reason in words, no empty axes
+        fig.delaxes(top)
+        lines.append(why_not[0].upper() + why_not[1:])
     for s in contents:
         a = s.analysis
         text = "; ".join([f"{s.path.name} ({s.title}, {_started(s.meta)}): {len(s.shown)} points with numbers",
