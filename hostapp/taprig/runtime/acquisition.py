@@ -29,7 +29,7 @@ from taprig import __version__
 from taprig.analysis.unsteady import tap_fluctuation
 from taprig.link import Link, LinkError, LinkEvent, LinkEventKind
 from taprig.link.errors import CommandRefusedError, CommandTimeoutError
-from taprig.protocol import Description, DeviceState, Log, RawBlock, ReplyCode, Status, channels_to_mask
+from taprig.protocol import Description, DeviceState, Log, RawBlock, Reply, ReplyCode, Status, channels_to_mask
 from taprig.reduce import ReducedBlock, ReducedMean, Reducer, ScanFlag, finite_mean
 from taprig.protocol import ActuatorKind
 from taprig.rig import Calibration, Rig, build_calibration, calibration_to_text, wind_off_zero
@@ -212,6 +212,12 @@ class Acquisition:
         self.device_state: DeviceState | None = None  # from the board's latest STATUS
         self._window = _Window(window_s)
         self._window_lock = threading.Condition()
+        # For each recent command's reply (by request id): the newest scan of the first block that came after it
+        # on the link, None until one has (under the window lock; see :meth:`acted_by_ns`).
+        self._after_reply: dict[int, int | None] = {}
+        self._awaiting_block: list[int] = []
+        #: Each actuator's newest command: (its request id, the board's clock after its reply or None).
+        self._commanded: dict[str, tuple[int | None, int | None]] = {}
         self._paced = False
         #: Device time [ns] at which a paced stream starts (:meth:`open`), None otherwise.
         self.stream_start_ns: int | None = None
@@ -519,8 +525,8 @@ class Acquisition:
             timing = {"at_t_ns": int(at_t_ns), "late": newest is not None and newest >= at_t_ns}
         self._stamp_setpoint(actuator, value, timing=timing)
         try:
-            self.link.set_actuator(actuator.id, self._device_value(actuator, value),
-                                   guard=None if safe else self._last_look)
+            reply = self.link.set_actuator(actuator.id, self._device_value(actuator, value),
+                                           guard=None if safe else self._last_look)
         except AcquisitionError:  # withheld at the last moment: the host froze or the board went safe meanwhile
             self._stamp_setpoint(actuator, previous, refused=True)
             raise
@@ -538,8 +544,51 @@ class Acquisition:
             if self.halted.wait(0.25):
                 raise AcquisitionError(f"{name} not set to {value:g}: {self.halt_reason}") from None
             raise AcquisitionError(f"{name}: the board did not take {value:g}: {exc}") from None
+        self._commanded[name] = (getattr(reply, "req", None), self._board_clock_ns())
         if not safe:
             self._driven = True
+
+    def _board_clock_ns(self) -> int | None:
+        """The board's clock now [ns] when the port can tell it (the simulated board, paced or not), else None."""
+        pacing = self.link.pacing
+        if pacing is None:
+            return None
+        try:
+            return int(pacing.board_time_ns())
+        except Exception:  # a port lost meanwhile: the reader notices and the run halts
+            return None
+
+    def acted_by_ns(self, name: str, timeout_s: float) -> int | None:
+        """A device time [ns] by which the board had acted on the newest command to actuator ``name``: the time
+        from which its move may be counted without counting any of the time before it.
+
+        A board acts on ``SET_ACTUATOR`` before it replies (PROTOCOL.md §3: the reply says what it did), and a
+        block of scans goes out once its last scan is taken; so the newest scan of the first block that reaches
+        the host after the reply was taken after the command acted. A board whose clock the port can read (the
+        simulated one) gives it directly: its clock read after the reply. On a paced board the command acts at its
+        chosen time or, when it arrived late, on arrival: the caller takes the later of that time and this one.
+
+        Waits (at most ``timeout_s`` of wall time beyond the board's own pace) for that block on a board without a
+        readable clock; :class:`AcquisitionError` when the run halts or stops meanwhile, or no block comes. None
+        when no command to ``name`` was acknowledged in this run."""
+        req, clock_ns = self._commanded.get(name, (None, None))
+        if clock_ns is not None:
+            return clock_ns
+        if req is None:
+            return None
+        deadline = time.monotonic() + timeout_s
+        with self._window_lock:
+            while True:
+                after = self._after_reply.get(req)
+                if after is not None:
+                    return after
+                if time.monotonic() >= deadline:
+                    break
+                self.check_running()  # the board went safe, or the run is ending: stop waiting, say why
+                self._window_lock.wait(min(0.2, max(0.0, deadline - time.monotonic())))
+        self.check_running()
+        raise AcquisitionError(f"no scans came after the board took the {name} setpoint within {timeout_s:g} s "
+                               f"(link {self.link_state}): when its move began is not known")
 
     def _device_value(self, actuator, value: float) -> float:
         """``value`` [SI] in the board's unit; the rig's safe value is sent as the board's own safe value from its
@@ -785,10 +834,20 @@ class Acquisition:
         self._watch_safety(items, host_ns)  # before the scans are kept: no point may use scans after a halt
         if self.link_state in ("connected", "restored") and any(isinstance(i, Description) for i in items):
             self._schedule_resume()  # the board rebooted under a live link (a reset): it is idle and safe now
-        if blocks:
+        if blocks or any(isinstance(item, Reply) for item in items):
             with self._window_lock:
-                for block in blocks:
-                    self._window.add(block)
+                for item in items:  # in the order the board sent them: a reply, then the blocks after it
+                    if isinstance(item, Reply):
+                        self._after_reply[item.req] = None
+                        self._awaiting_block.append(item.req)
+                        while len(self._after_reply) > 256:  # only recent commands are asked about
+                            del self._after_reply[next(iter(self._after_reply))]
+                    elif isinstance(item, RawBlock):
+                        self._window.add(item)
+                        for req in self._awaiting_block:
+                            if req in self._after_reply:
+                                self._after_reply[req] = int(item.t_ns[-1])
+                        self._awaiting_block.clear()
                 self._window_lock.notify_all()
             self.scans += n_scans
         try:

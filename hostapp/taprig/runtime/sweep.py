@@ -5,8 +5,10 @@ Everything is timed on *device* time, the scans' own timestamps (:class:`Timelin
 time the sweep chose, each point averages the scans of an exact device-time window, and each command is meant to
 act at a device time the sweep chose too (``DECISION_S`` after the scans it was decided on). A board that can be
 paced (the simulated one) acts at exactly that time and, in compressed time, waits there for the host; so the
-same seed gives the same points in real and in compressed time. A real board acts when the command arrives, a
-moment before that time. A sweep on a real board is not fooled by a slow host either way.
+same seed gives the same points in real and in compressed time. A real board (or one not paced) acts when the
+command arrives: usually a moment before that time, after it when the host was slow; the waits after a command
+count from the later of its time and a device time by which the board had acted (:meth:`Timeline.set`), so a
+sweep is not fooled by a slow host either way.
 
 Every point's record carries what the analysis needs besides the reduced mean (docs/session-format.md, Points):
 the plan's index, leg and group, the commanded angle and fan setting, whether the angle was set by hand, and each
@@ -115,8 +117,14 @@ class Timeline:
         return end - round(seconds * 1e9), end
 
     def set(self, name: str, value: float) -> None:
-        """Set an actuator, to act at the cursor (a paced board; a real one acts on arrival)."""
+        """Set an actuator, to act at the cursor (a paced board; a real one acts on arrival); the waits after it
+        count from when the board acted, if that was later (a command that arrived after its time: a slow host,
+        a board that is not paced), so no settle is shorter than asked and no window averages scans from before
+        the move (:meth:`Acquisition.acted_by_ns`)."""
         self.acq.set_actuator(name, value, at_t_ns=self.cursor if self.acq.paced else None)
+        acted = self.acq.acted_by_ns(name, self.timeout_s)
+        if acted is not None and acted > self.cursor:
+            self.cursor = acted
 
     def after_operator(self) -> None:
         """The operator set something by hand just now: the next wait starts from now, not from before."""
