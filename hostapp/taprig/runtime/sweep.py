@@ -314,8 +314,9 @@ def run_plan(acq: Acquisition, plan: SweepPlan, settle_s: float = 1.0, average_s
                 break
             acq.check_running()
             if target.fan is not None and acq.setpoints[fan.name] != target.fan:
-                fan_changed = (clock.cursor, clock.q_now())  # the first point after it waits for its approach
+                q_before = clock.q_now()
                 clock.set(fan.name, target.fan)
+                fan_changed = (clock.cursor, q_before)  # the first point after it waits for its approach
                 driven.add(fan.name)
                 clock.wait(spin_up_s, timeout_s + spin_up_s)
             if target.alpha_rad is not None:
