@@ -141,3 +141,28 @@ def test_point_table_reads_records_and_chooses_the_coefficients():
     assert shape.cl.tolist() == [0.6, -0.6] and shape.alpha_rad.tolist() == [0.1, -0.1]
     with pytest.raises(ValueError, match="expected one of"):
         point_table(records, "walls")
+
+
+def test_a_point_with_a_sensor_state_enters_no_lift_fit_nor_cl_max():
+    # project rule: a saturated or out-of-range reading is a state, not a number. A point flagged so, with a Cl
+    # that would otherwise be the maximum and bend the slope, is left out of the fit and of Cl max.
+    from pathlib import Path
+
+    from taprig.analysis import analyse_points
+    from taprig.rig import load_rig
+
+    rig = load_rig(Path(__file__).resolve().parents[2] / "rigs" / "naca0012-20tap.toml")
+    alphas = np.radians(np.arange(-4.0, 9.0, 2.0))
+    records = []
+    for i, alpha in enumerate(alphas):
+        cl = 2 * np.pi * 0.9 * alpha  # thin-airfoil slope less 10 % (common practice, a plausible section)
+        flags = []
+        if i == len(alphas) - 1:
+            cl, flags = 2.5, ["SATURATED", "DEGRADED"]  # a tap at its rails: not a lift to fit
+        records.append({"label": f"a{i}", "alpha_rad": float(alpha), "flags": flags, "q_pa": 200.0, "u_q_pa": 1.0,
+                        "plain": {"cl": float(cl), "u_cl": 0.01, "cd_p": 0.01, "u_cd_p": 0.001, "cm_qc": 0.0,
+                                  "u_cm_qc": 0.001, "method": "trapezoid"}})
+    a = analyse_points(records, rig)
+    assert a.fit is not None and len(alphas) - 1 not in a.fit.used
+    assert a.fit.slope == pytest.approx(2 * np.pi * 0.9, rel=1e-6)
+    assert a.stall is not None and a.stall.cl_max < 2.0

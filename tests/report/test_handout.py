@@ -565,3 +565,32 @@ def test_each_kind_shows_only_the_coefficients_it_claims(sessions, tmp_path):
     assert code == 0, err
     page = " ".join(pdf_text(both, 2).split())
     assert "Sessions compared" in page and "claims no coefficient" in page
+
+
+def test_a_venturi_point_beyond_a_sensors_rated_range_gives_no_c_but_its_state(tmp_path):
+    # The venturi-pitot test rig with its station parts narrowed to ±1 kPa (a variant rig): at fan 0.5 the throat
+    # reads beyond the part's rated range, where the datasheet specifies no accuracy, so no uncertainty can be
+    # stated for C there (project rule: out of range is a state, not a number). C at the other points stands.
+    from taprig.rig import load_rig
+    from tests.report.sessions import fan_steps_session
+
+    text = VENTURI_PITOT.read_text(encoding="utf-8")
+    narrow = text.replace("pmin_pa = -2000.0\npmax_pa = 2000.0", "pmin_pa = -1000.0\npmax_pa = 1000.0")
+    assert narrow != text
+    rig_path = tmp_path / "venturi-pitot-narrow.toml"
+    rig_path.write_text(narrow, encoding="utf-8")
+    session = fan_steps_session(tmp_path / "narrow.taprig", rig_path, (0.3, 0.5, 0.7), query=f"venturi_c={SIM_C}")
+    with SessionReader(session) as r:
+        records = [p.data for p in r.points()]
+    flags = [set(rec.get("flags") or ()) for rec in records]
+    assert not flags[0] & {"SATURATED", "OUT_OF_RANGE"} and "OUT_OF_RANGE" in flags[1], flags
+    a = analyse_points(records, load_rig(rig_path))
+    dc = a.discharge
+    assert dc is not None and math.isfinite(dc.c[0]) and abs(dc.c[0] - SIM_C) <= 2 * dc.u_c[0]
+    assert all(np.isnan(dc.c[i]) and dc.states[i] for i in (1, 2)), (dc.c, dc.states)
+    assert dc.states[1] == "beyond a sensor's rated range"
+    assert dc.mean_c == pytest.approx(dc.c[0])  # the mean is the one point with a C
+    pdf = tmp_path / "narrow.pdf"
+    assert handout(session, "-o", pdf)[0] == 0
+    page = " ".join(pdf_text(pdf, 2).split())
+    assert "no C (beyond a sensor's rated range)" in page, page[:3000]

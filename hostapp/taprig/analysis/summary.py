@@ -20,7 +20,8 @@ from taprig.analysis.lift import (
 )
 from taprig.analysis.points import PointTable, point_table
 from taprig.analysis.unsteady import Unsteadiness, unsteadiness
-from taprig.analysis.venturi import ISO_MACHINED, DischargeCoefficient, discharge_coefficient, station_comparison
+from taprig.analysis.venturi import ISO_MACHINED, DischargeCoefficient, discharge_coefficient, sensor_state, \
+    station_comparison
 from taprig.rig import Rig, RigKind
 
 
@@ -114,7 +115,10 @@ def analyse_points(records: Sequence[Mapping], rig: Rig, coefficients: str = "be
         first = np.isclose(table.fan, fans[0]) if fans else np.ones(len(table), dtype=bool)
         up = np.array([leg != "down" for leg in table.leg]) & first
         down = np.array([leg == "down" for leg in table.leg]) & first
-        a, cl, u = table.alpha_rad, table.cl, table.u_cl
+        a, u = table.alpha_rad, table.u_cl
+        # a point with a sensor saturated or beyond its rated range is a state: it enters no fit, stall or Cl max
+        in_state = np.array([bool(sensor_state(r.get("flags"))) for r in records], dtype=bool)
+        cl = np.where(in_state, np.nan, table.cl)
         fit = _try(reasons, "fit", linear_range_fit, a[up], cl[up], u[up])
         if fit is not None:  # indices into the whole table
             fit = _reindex(fit, np.flatnonzero(up))
@@ -152,8 +156,9 @@ def analyse_points(records: Sequence[Mapping], rig: Rig, coefficients: str = "be
         else:
             cp_t = [_num((r.get("cp") or {}).get(throat)) for r in records]
             u_t = [_num((r.get("u_cp") or {}).get(throat)) for r in records]
+            states = [sensor_state(r.get("flags")) for r in records]  # such a point gives no C: a state instead
             dc = _try(reasons, "discharge", discharge_coefficient, cp_t, u_t, float(stations.cp_ideal[stations.throat]),
-                      table.re, stations.beta)
+                      table.re, stations.beta, states=states)
             out["discharge"] = dc
             if dc is not None:
                 re = dc.re_d[np.isfinite(dc.c)]

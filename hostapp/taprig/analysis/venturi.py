@@ -72,12 +72,28 @@ class IsoVenturiRange:
 ISO_MACHINED = IsoVenturiRange()
 
 
+#: Point flags that make a reading a state, not a number: a sensor at its rails, or beyond its rated range (where
+#: its accuracy is not specified, so no uncertainty can be stated). Most serious first.
+SENSOR_STATES = (("SATURATED", "saturated"), ("OUT_OF_RANGE", "beyond a sensor's rated range"))
+
+
+def sensor_state(flags) -> str:
+    """"" when no sensor of a point was saturated or beyond its rated range, else that state in words.
+
+    >>> sensor_state(["DEGRADED", "OUT_OF_RANGE"])
+    "beyond a sensor's rated range"
+    """
+    names = set(flags or ())
+    return next((word for flag, word in SENSOR_STATES if flag in names), "")
+
+
 @dataclass(frozen=True)
 class DischargeCoefficient:
-    """C per point against Re_D: ``re_d``, ``c``, ``u_c`` (NaN where there was no flow); ``mean_c`` (weighted by
-    1/u²) with ``u_mean_c`` (the standard error of the mean from the points' scatter, or the best point's own
-    uncertainty when that is larger: the points share their sensors, so that part does not average away);
-    ``beta`` the diameter ratio."""
+    """C per point against Re_D: ``re_d``, ``c``, ``u_c`` (NaN where there was no flow or a sensor state);
+    ``mean_c`` (weighted by 1/u²) with ``u_mean_c`` (the standard error of the mean from the points' scatter, or
+    the best point's own uncertainty when that is larger: the points share their sensors, so that part does not
+    average away); ``beta`` the diameter ratio; ``states`` per point, "" or the sensor state (:func:`sensor_state`)
+    that stands instead of its C."""
 
     re_d: np.ndarray
     c: np.ndarray
@@ -85,6 +101,7 @@ class DischargeCoefficient:
     mean_c: float
     u_mean_c: float
     beta: float
+    states: tuple[str, ...] = ()
 
 
 def station_comparison(areas_m2, inlet: int = 0) -> np.ndarray:
@@ -94,7 +111,7 @@ def station_comparison(areas_m2, inlet: int = 0) -> np.ndarray:
 
 
 def discharge_coefficient(cp_throat, u_cp_throat, cp_throat_ideal: float, re_d, beta: float,
-                          expansibility=1.0) -> DischargeCoefficient:
+                          expansibility=1.0, states=None) -> DischargeCoefficient:
     """Discharge coefficient of each point from its throat Cp referred to an independent inlet q (module docstring).
 
     Parameters
@@ -109,6 +126,8 @@ def discharge_coefficient(cp_throat, u_cp_throat, cp_throat_ideal: float, re_d, 
         Diameter ratio d/D [-].
     expansibility : array_like
         ε of each point [-] (1 for a liquid or a small differential).
+    states : sequence of str, optional
+        Per point, "" or a sensor state (:func:`sensor_state`): such a point gets no C (NaN) and enters no mean.
 
     Examples
     --------
@@ -120,15 +139,22 @@ def discharge_coefficient(cp_throat, u_cp_throat, cp_throat_ideal: float, re_d, 
     u = np.asarray(u_cp_throat, dtype=float)
     re = np.asarray(re_d, dtype=float)
     eps = np.broadcast_to(np.asarray(expansibility, dtype=float), cp.shape)
+    states = tuple(states) if states is not None else ("",) * cp.size
+    if len(states) != cp.size:
+        raise ValueError(f"{len(states)} point states for {cp.size} points")
+    in_state = np.array([bool(s) for s in states], dtype=bool).reshape(cp.shape)
     with np.errstate(invalid="ignore", divide="ignore"):
-        c = np.where(cp < 0, np.sqrt(cp_throat_ideal / cp) / eps, np.nan)
+        c = np.where((cp < 0) & ~in_state, np.sqrt(cp_throat_ideal / cp) / eps, np.nan)
         u_c = c * 0.5 * np.abs(u / cp)
     ok = np.isfinite(c)
     if not ok.any():
+        if in_state.any():
+            raise ValueError("every point with flow had a sensor saturated or beyond its rated range: no C can be "
+                             "stated")
         raise ValueError("no point has a throat pressure below the inlet's (no flow through the venturi)")
     weights = np.where(u_c[ok] > 0, 1.0 / np.where(u_c[ok] > 0, u_c[ok], 1.0) ** 2, 1.0)
     mean = float(np.sum(weights * c[ok]) / np.sum(weights))
     # the points share their sensors, so their own uncertainty does not average away: the best point's is a floor
     scatter = float(c[ok].std(ddof=1) / math.sqrt(ok.sum())) if ok.sum() > 1 else 0.0
     best = float(np.nanmin(u_c[ok])) if np.isfinite(u_c[ok]).any() else 0.0
-    return DischargeCoefficient(re, c, u_c, mean, max(scatter, best), float(beta))
+    return DischargeCoefficient(re, c, u_c, mean, max(scatter, best), float(beta), states)

@@ -323,6 +323,11 @@ def venturi_lines(a, iso, per_point: bool = True) -> list[str]:
     if per_point:
         for i in np.flatnonzero(ok)[np.argsort(dc.re_d[ok], kind="stable")]:
             out.append(f"  Re_D {reynolds(dc.re_d[i], u_re[i])}: C {pm(dc.c[i], dc.u_c[i])}")
+    labels = a.table.labels if len(a.table) == len(dc.c) else ()
+    for i, state in enumerate(dc.states):
+        if state:
+            who = f"point {labels[i]}" if i < len(labels) and labels[i] else f"point {i + 1}"
+            out.append(f"  {who}: no C ({state})")
     out.append(standard)
     if a.iso_outside:
         out.append("Outside the standard's range: " + "; ".join(a.iso_outside) + " (its C does not apply there).")
