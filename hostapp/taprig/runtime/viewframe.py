@@ -273,7 +273,8 @@ def sweep_results(records, rig, plan=None) -> dict:
     c_of: dict[int, tuple] = {}
     dc = a.discharge
     if dc is not None:
-        c_of = {i: (dc.c[i], dc.u_c[i], dc.re_d[i]) for i in range(len(dc.c))}
+        c_of = {i: (dc.c[i], dc.u_c[i], dc.re_d[i], dc.states[i] if i < len(dc.states) else "")
+                for i in range(len(dc.c))}
         ok = np.isfinite(dc.c)
         out["discharge"] = {
             "mean_c": pair(dc.mean_c, dc.u_mean_c), "beta": num(dc.beta),
@@ -291,6 +292,7 @@ def sweep_results(records, rig, plan=None) -> dict:
             "q_pa": pair(t.q_pa[i], t.u_q_pa[i]),
             "re": pair(t.re[i], t.u_re[i]), "cl": pair(t.cl[i], t.u_cl[i]), "cd_p": pair(t.cd_p[i], t.u_cd_p[i]),
             "c": None if c is None else pair(c[0], c[1]),
+            "c_state": (c[3] or None) if c is not None else None,  # a sensor state stands instead of C
             "carried": records[i].get("carried_from") is not None})
     reasons = dict(a.reasons)
     if rig.kind.value == "airfoil" and (plan is None or plan.inner == "angle"):

@@ -677,7 +677,7 @@ async function loadSweepResults() {
   for (const p of data.points) {
     const tr = document.createElement("tr");
     const cells = [p.number, (p.label || "") + (p.carried ? " (carried)" : ""), p.fan === null ? "–" : fmt(p.fan),
-                   p.alpha_deg === null ? "–" : fmt(p.alpha_deg, 1), p.re ? fmtU(p.re) : "–", yOf(p) ? fmtU(yOf(p)) : "–"];
+                   p.alpha_deg === null ? "–" : fmt(p.alpha_deg, 1), p.re ? fmtU(p.re) : "–", yOf(p) ? fmtU(yOf(p)) : (venturi && p.c_state) || "–"];
     for (const c of cells) { const td = document.createElement("td"); td.textContent = c; tr.appendChild(td); }
     tb.appendChild(tr);
   }
