@@ -231,3 +231,34 @@ def test_a_board_of_protocol_1_0_is_sent_no_allow_moves_and_the_operator_is_told
         acq.close()
     assert not any(type(m).__name__ == "AllowMoves" for _, _, m in acq.board.commands)
     assert "board without safe hold" in [e.kind for e in events(tmp_path)]
+
+
+def test_a_halt_noted_while_a_setpoint_is_decided_never_follows_the_setpoint_record(tmp_path, monkeypatch):
+    # A host frozen between its look at the halt and the setpoint's record wakes to both at once: the halt (the
+    # reader thread) and the setpoint (the sweep). The record must never show a move decided after a halt the
+    # host had seen: either the halt comes first and the move is refused, or the move is recorded before the halt.
+    acq = start(tmp_path, "seed=11")
+    try:
+        looked = threading.Event()
+        real_check = acq.check_running
+
+        def check_then_halt():  # the sweep's look passes; the reader notes a halt right after it
+            real_check()
+            threading.Thread(target=acq._halt, args=("the board's watchdog tripped (test)",)).start()
+            looked.set()
+            threading.Event().wait(0.2)  # the halting thread runs meanwhile, as after a freeze
+
+        monkeypatch.setattr(acq, "check_running", check_then_halt)
+        try:
+            acq.set_actuator("alpha", math.radians(2.0))
+        except AcquisitionError:
+            pass
+        assert looked.is_set() and acq.halted.wait(2.0)
+    finally:
+        acq.close()
+    recorded = [e for e in events(tmp_path) if e.kind in ("halt", "setpoint")]
+    halt = next(i for i, e in enumerate(recorded) if e.kind == "halt")
+    moves = [e.data for e in recorded if e.kind == "setpoint" and e.data["actuator"] == "alpha"
+             and e.data.get("by") != "board" and not e.data.get("refused") and e.data["value"] != 0.0]
+    after = [e.data for e in recorded[halt + 1:] if e.data in moves]
+    assert moves and after == []  # the 2° move was recorded, and before the halt

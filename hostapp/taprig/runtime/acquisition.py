@@ -515,7 +515,6 @@ class Acquisition:
         safe = value == actuator.safe
         if not safe:  # a safe value may always be sent; anything else only while the run is going and not halted
             self._check_host_stall()
-            self.check_running()
         previous = self.setpoints[name]
         if at_t_ns is None:
             self.pace(None)
@@ -523,7 +522,12 @@ class Acquisition:
         if at_t_ns is not None:
             newest = self.newest_t_ns
             timing = {"at_t_ns": int(at_t_ns), "late": newest is not None and newest >= at_t_ns}
-        self._stamp_setpoint(actuator, value, timing=timing)
+        # The look at the halt and the setpoint's record are one step against _halt: a host frozen between them
+        # (the halt noted on waking) cannot record a move as decided after the halt it had not yet seen.
+        with self._halt_lock:
+            if not safe:
+                self.check_running()
+            self._stamp_setpoint(actuator, value, timing=timing)
         try:
             reply = self.link.set_actuator(actuator.id, self._device_value(actuator, value),
                                            guard=None if safe else self._last_look)
