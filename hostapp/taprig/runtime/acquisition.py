@@ -548,19 +548,9 @@ class Acquisition:
             if self.halted.wait(0.25):
                 raise AcquisitionError(f"{name} not set to {value:g}: {self.halt_reason}") from None
             raise AcquisitionError(f"{name}: the board did not take {value:g}: {exc}") from None
-        self._commanded[name] = (getattr(reply, "req", None), self._board_clock_ns())
+        self._commanded[name] = (getattr(reply, "req", None), self.board_time_ns(paced_only=False))
         if not safe:
             self._driven = True
-
-    def _board_clock_ns(self) -> int | None:
-        """The board's clock now [ns] when the port can tell it (the simulated board, paced or not), else None."""
-        pacing = self.link.pacing
-        if pacing is None:
-            return None
-        try:
-            return int(pacing.board_time_ns())
-        except Exception:  # a port lost meanwhile: the reader notices and the run halts
-            return None
 
     def acted_by_ns(self, name: str, timeout_s: float) -> int | None:
         """A device time [ns] by which the board had acted on the newest command to actuator ``name``: the time
@@ -783,9 +773,10 @@ class Acquisition:
             except Exception:  # a port lost meanwhile: the reader notices and the run halts
                 pass
 
-    def board_time_ns(self) -> int | None:
-        """The board's clock now [ns] on a paced run (the simulated board's own), else None."""
-        pacing = self.link.pacing if self._paced else None
+    def board_time_ns(self, paced_only: bool = True) -> int | None:
+        """The board's clock now [ns] on a paced run (the simulated board's own), else None; with ``paced_only``
+        False, whenever the port can tell it (the simulated board, paced or not)."""
+        pacing = self.link.pacing if self._paced or not paced_only else None
         if pacing is None:
             return None
         try:
