@@ -158,3 +158,21 @@ def test_replay_of_a_live_run_is_bit_identical(tmp_path):
         assert np.array_equal(a, b, equal_nan=a.dtype.kind == "f"), name
     alphas = np.unique(np.concatenate([b.alpha_rad for b in live]))
     assert len(alphas) >= 4  # safe 0, then three setpoints
+
+
+def test_the_newest_seconds_are_exactly_those_scans_whatever_blocks_they_came_in():
+    # A point of "the last second" at 500 Hz is 500 scans, also when the blocks are larger than the window (a
+    # compressed board's big chunks) or a block began before it: before, such a block was left out whole.
+    from taprig.runtime.acquisition import _Window
+
+    def block(first_scan, n):
+        idx = np.arange(first_scan, first_scan + n)
+        return RawBlock(np.zeros((n, 2), dtype=np.int32), (0, 1), idx * 2_000_000, idx)
+
+    window = _Window(10.0)
+    for first in (0, 700, 1400):  # 1.4 s blocks of 700 scans
+        window.add(block(first, 700))
+    last = window.last(1.0)
+    assert last.n_scans == 500 and last.t_ns[-1] == 2099 * 2_000_000 and last.t_ns[0] == 1600 * 2_000_000
+    window.add(block(0, 100))  # the board restarted: its clock begins again, older scans are of another clock
+    assert window.last(1.0).n_scans == 100

@@ -163,15 +163,23 @@ class _Window:
         return RawBlock(block.counts[keep], block.channels, block.t_ns[keep], block.scan_index[keep])
 
     def last(self, seconds: float) -> RawBlock | None:
+        """The scans of the newest ``seconds`` of device time, newest_t − seconds < t ≤ newest_t, whatever blocks
+        they came in (a block that began earlier gives its tail: a large block is not left out whole, nor taken
+        whole). A board restart has already emptied the window (:meth:`add`)."""
         if not self.blocks:
             return None
-        newest = self.blocks[-1].t_ns[-1]
+        newest = int(self.blocks[-1].t_ns[-1])
+        first = newest - seconds * 1e9
         chosen = []
-        for b in reversed(self.blocks):  # newest first: stop at the first block that began too early
-            if newest - b.t_ns[0] > seconds * 1e9:
-                break
+        for b in reversed(self.blocks):  # newest first, back to the first block that began early enough
             chosen.append(b)
-        return RawBlock.concat(chosen[::-1] or [self.blocks[-1]])
+            if b.t_ns[0] <= first:
+                break
+        block = RawBlock.concat(chosen[::-1])
+        keep = block.t_ns > first
+        if keep.all():
+            return block
+        return RawBlock(block.counts[keep], block.channels, block.t_ns[keep], block.scan_index[keep])
 
 
 class Acquisition:
